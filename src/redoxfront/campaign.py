@@ -1,0 +1,269 @@
+"""The campaign file (TOML): settings, paths and their validation in one place.
+
+A campaign folder holds ``campaign.toml``, ``inputs/``, ``results/`` and the
+store ``cache.sqlite``. Every section of the TOML file maps to a frozen
+dataclass; :func:`section_from_mapping` validates any such dataclass, so unknown
+keys and bad values get one kind of error that names the key and what is allowed.
+Modules that own a section (calibration, model, fade, cell, ranking) declare their
+own dataclass and validate it with the same function.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import json
+import tomllib
+import typing
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Mapping, TypeVar
+
+from redoxfront.errors import SettingsError
+from redoxfront.units import ABSOLUTE_SHE_V, REFERENCE_ELECTRODES_V_VS_SHE, reference_key
+
+T = TypeVar("T")
+
+# Named ALPB solvents parametrised for GFN2-xTB (list as documented for the xtb/tblite
+# ALPB model, Ehlert et al., J. Chem. Theory Comput. 2021, 17, 4250).
+ALPB_SOLVENTS: tuple[str, ...] = (
+    "acetone", "acetonitrile", "aniline", "benzaldehyde", "benzene", "ch2cl2",
+    "chcl3", "cs2", "dioxane", "dmf", "dmso", "ether", "ethylacetate", "furane",
+    "hexandecane", "hexane", "methanol", "nitromethane", "octanol", "phenol",
+    "toluene", "thf", "water",
+)
+METHODS: tuple[str, ...] = ("GFN2-xTB", "GFN1-xTB", "IPEA1-xTB")
+ROLES: tuple[str, ...] = ("anolyte", "catholyte")
+
+
+def choice(*values: Any) -> dict[str, Any]:
+    """Field metadata: the value must be one of ``values``."""
+    return {"choices": tuple(values)}
+
+
+def bounded(lo: float | None = None, hi: float | None = None) -> dict[str, Any]:
+    """Field metadata: the value must lie in [lo, hi]."""
+    return {"min": lo, "max": hi}
+
+
+def _check_type(value: Any, hint: Any, where: str) -> Any:
+    origin = typing.get_origin(hint)
+    args = typing.get_args(hint)
+    if origin in (typing.Union, getattr(__import__("types"), "UnionType", None)):
+        if value is None and type(None) in args:
+            return None
+        inner = [a for a in args if a is not type(None)]
+        return _check_type(value, inner[0], where)
+    if origin in (tuple, list):
+        if not isinstance(value, (list, tuple)):
+            raise SettingsError(f"{where}: expected a list, got {value!r}")
+        item = args[0] if args else Any
+        return tuple(_check_type(v, item, where) for v in value)
+    if origin is dict:
+        if not isinstance(value, Mapping):
+            raise SettingsError(f"{where}: expected a table, got {value!r}")
+        return dict(value)
+    if hint is Any:
+        return value
+    if hint is bool:
+        if not isinstance(value, bool):
+            raise SettingsError(f"{where}: expected true or false, got {value!r}")
+        return value
+    if hint is int:
+        if isinstance(value, bool) or not isinstance(value, int):
+            raise SettingsError(f"{where}: expected a whole number, got {value!r}")
+        return value
+    if hint is float:
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise SettingsError(f"{where}: expected a number, got {value!r}")
+        return float(value)
+    if hint is str:
+        if not isinstance(value, str):
+            raise SettingsError(f"{where}: expected text, got {value!r}")
+        return value
+    if dataclasses.is_dataclass(hint):
+        if not isinstance(value, Mapping):
+            raise SettingsError(f"{where}: expected a table, got {value!r}")
+        return section_from_mapping(hint, value, where)
+    return value
+
+
+def section_from_mapping(cls: type[T], mapping: Mapping[str, Any] | None, section: str) -> T:
+    """Build the dataclass ``cls`` from a TOML table, validating every key.
+
+    Unknown keys, wrong types, values outside ``choices`` or bounds raise
+    :class:`SettingsError` naming ``[section] key`` and the allowed values.
+    """
+    mapping = dict(mapping or {})
+    hints = typing.get_type_hints(cls)
+    fields = {f.name: f for f in dataclasses.fields(cls)}  # type: ignore[arg-type]
+    unknown = sorted(set(mapping) - set(fields))
+    if unknown:
+        raise SettingsError(
+            f"[{section}] unknown key '{unknown[0]}'; allowed keys: {', '.join(sorted(fields))}"
+        )
+    values: dict[str, Any] = {}
+    for name, value in mapping.items():
+        where = f"[{section}] {name}"
+        value = _check_type(value, hints[name], where)
+        meta = fields[name].metadata
+        if "choices" in meta and value is not None:
+            allowed = meta["choices"]
+            if value not in allowed:
+                raise SettingsError(
+                    f"{where} = {value!r} is not allowed; allowed values: "
+                    + ", ".join(str(a) for a in allowed)
+                )
+        lo, hi = meta.get("min"), meta.get("max")
+        if value is not None and lo is not None and value < lo:
+            raise SettingsError(f"{where} = {value!r} must be >= {lo}")
+        if value is not None and hi is not None and value > hi:
+            raise SettingsError(f"{where} = {value!r} must be <= {hi}")
+        values[name] = value
+    return cls(**values)
+
+
+@dataclass(frozen=True)
+class ConformerSettings:
+    """Conformer ensemble settings (RDKit ETKDGv3 + MMFF94, then xTB refinement)."""
+
+    n_generate: int = field(default=12, metadata=bounded(1, 1000))
+    energy_window_kcal_per_mol: float = field(default=6.0, metadata=bounded(0.0, None))
+    rmsd_threshold_angstrom: float = field(default=0.5, metadata=bounded(0.0, None))
+    refine_lowest: int = field(default=3, metadata=bounded(1, 100))
+
+
+@dataclass(frozen=True)
+class OptimizerSettings:
+    """Convergence criteria of the geometry optimiser, atomic units (Eh, bohr).
+
+    Defaults are the customary quantum-chemistry thresholds (max force 4.5e-4,
+    RMS force 3.0e-4 Eh/bohr, max step 1.8e-3, RMS step 1.2e-3 bohr; common
+    practice, no source).
+    """
+
+    max_force_eh_per_bohr: float = field(default=4.5e-4, metadata=bounded(1e-7, None))
+    rms_force_eh_per_bohr: float = field(default=3.0e-4, metadata=bounded(1e-7, None))
+    max_step_bohr: float = field(default=1.8e-3, metadata=bounded(1e-7, None))
+    rms_step_bohr: float = field(default=1.2e-3, metadata=bounded(1e-7, None))
+    max_iterations: int = field(default=300, metadata=bounded(1, 10000))
+    trust_radius_bohr: float = field(default=0.3, metadata=bounded(0.01, 2.0))
+
+
+@dataclass(frozen=True)
+class ComputeSettings:
+    """Everything that decides the semiempirical results of one candidate."""
+
+    solvent: str = field(default="acetonitrile", metadata=choice(*ALPB_SOLVENTS, "none"))
+    method: str = field(default="GFN2-xTB", metadata=choice(*METHODS))
+    role: str = field(default="catholyte", metadata=choice(*ROLES))
+    n_electrons: int = field(default=1, metadata=choice(1, 2))
+    reference: str = field(default="fc", metadata=choice(*REFERENCE_ELECTRODES_V_VS_SHE))
+    absolute_she: str = field(default="trasatti", metadata=choice(*ABSOLUTE_SHE_V))
+    ipea_shift_ev: float = 4.8455
+    spin_polarized: bool = False
+    seed: int = field(default=20261201, metadata=bounded(0, 2**31 - 1))
+    workers: int = field(default=2, metadata=bounded(1, 1024))
+    threads_per_worker: int = field(default=1, metadata=bounded(1, 256))
+    max_heavy_atoms: int = field(default=100, metadata=bounded(1, 10000))
+    engine: str = field(default="tblite", metadata=choice("tblite", "xtb-python"))
+    conformers: ConformerSettings = ConformerSettings()
+    optimizer: OptimizerSettings = OptimizerSettings()
+
+    def result_hash(self) -> str:
+        """Hash of the settings that change stored energies and geometries.
+
+        Reference electrode, absolute SHE, shift, workers and threads only change
+        how stored energies are reported or how fast they come, so they are left out:
+        changing them recomputes nothing.
+        """
+        keep = {
+            "solvent": self.solvent,
+            "method": self.method,
+            "spin_polarized": self.spin_polarized,
+            "seed": self.seed,
+            "engine": self.engine,
+            "conformers": dataclasses.asdict(self.conformers),
+            "optimizer": dataclasses.asdict(self.optimizer),
+            "schema": 1,
+        }
+        text = json.dumps(keep, sort_keys=True)
+        return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+@dataclass(frozen=True)
+class InputSettings:
+    """Paths of the campaign's input files, relative to the campaign folder."""
+
+    candidates: str = "inputs/candidates.csv"
+    measured_potentials: str | None = None
+    measured_rates: str | None = None
+    cycling: str | None = None
+
+
+@dataclass(frozen=True)
+class Campaign:
+    """A loaded campaign: its folder, name, compute settings and the raw other sections.
+
+    Sections owned by other modules (``calibration``, ``model``, ``fade``, ``cell``,
+    ``ranking``, ``sites``) are kept as raw tables in ``sections`` and validated by
+    those modules with :func:`section_from_mapping`.
+    """
+
+    folder: Path
+    name: str
+    compute: ComputeSettings
+    inputs: InputSettings
+    sections: Mapping[str, Mapping[str, Any]]
+
+    @property
+    def results_dir(self) -> Path:
+        return self.folder / "results"
+
+    @property
+    def store_path(self) -> Path:
+        return self.folder / "cache.sqlite"
+
+    def path(self, relative: str) -> Path:
+        """Resolve a path given in the campaign file against the campaign folder."""
+        p = Path(relative)
+        return p if p.is_absolute() else self.folder / p
+
+    def section(self, name: str) -> Mapping[str, Any]:
+        return self.sections.get(name, {})
+
+
+OWNED_SECTIONS: tuple[str, ...] = (
+    "calibration", "model", "fade", "cell", "ranking", "sites", "descriptors", "report",
+)
+
+
+def load_campaign(path: str | Path) -> Campaign:
+    """Load and validate a campaign from ``campaign.toml`` or the folder holding it."""
+    p = Path(path)
+    toml_path = p / "campaign.toml" if p.is_dir() else p
+    if not toml_path.exists():
+        raise SettingsError(f"no campaign file at {toml_path}; create campaign.toml (see docs/)")
+    try:
+        data = tomllib.loads(toml_path.read_text(encoding="utf-8"))
+    except tomllib.TOMLDecodeError as exc:
+        raise SettingsError(f"{toml_path}: not valid TOML: {exc}") from exc
+    return campaign_from_mapping(data, toml_path.parent)
+
+
+def campaign_from_mapping(data: Mapping[str, Any], folder: Path) -> Campaign:
+    """Validate a parsed campaign table (see :func:`load_campaign`)."""
+    allowed = {"name", "compute", "inputs", *OWNED_SECTIONS}
+    unknown = sorted(set(data) - allowed)
+    if unknown:
+        raise SettingsError(
+            f"unknown section or key '{unknown[0]}' in campaign; allowed: {', '.join(sorted(allowed))}"
+        )
+    name = data.get("name", folder.name)
+    if not isinstance(name, str):
+        raise SettingsError(f"'name' must be text, got {name!r}")
+    compute = section_from_mapping(ComputeSettings, data.get("compute"), "compute")
+    reference_key(compute.reference)
+    inputs = section_from_mapping(InputSettings, data.get("inputs"), "inputs")
+    sections = {k: dict(data[k]) for k in OWNED_SECTIONS if k in data}
+    return Campaign(folder=folder, name=name, compute=compute, inputs=inputs, sections=sections)

@@ -1,0 +1,112 @@
+"""Physical constants, unit conversions and reference-electrode potentials.
+
+This module is the single source of truth for every constant and conversion in
+redoxfront. Values are CODATA 2018 unless stated otherwise.
+"""
+
+from __future__ import annotations
+
+import math
+
+from redoxfront.errors import SettingsError
+
+# --- CODATA 2018 (exact or recommended values) -------------------------------
+FARADAY_C_PER_MOL: float = 96485.33212
+"""Faraday constant, C/mol (CODATA 2018, exact as N_A * e)."""
+AVOGADRO_PER_MOL: float = 6.02214076e23
+"""Avogadro constant, 1/mol (CODATA 2018, exact)."""
+ELEMENTARY_CHARGE_C: float = 1.602176634e-19
+"""Elementary charge, C (CODATA 2018, exact)."""
+GAS_CONSTANT_J_PER_MOL_K: float = 8.314462618
+"""Molar gas constant, J/(mol K) (CODATA 2018, exact)."""
+BOLTZMANN_EV_PER_K: float = 8.617333262e-5
+"""Boltzmann constant, eV/K (CODATA 2018)."""
+HARTREE_EV: float = 27.211386245988
+"""Hartree energy, eV (CODATA 2018)."""
+BOHR_ANGSTROM: float = 0.529177210903
+"""Bohr radius, Angstrom (CODATA 2018)."""
+CAL_J: float = 4.184
+"""Thermochemical calorie, J (definition)."""
+
+# --- derived conversions -------------------------------------------------------
+EV_KJ_PER_MOL: float = ELEMENTARY_CHARGE_C * AVOGADRO_PER_MOL / 1000.0
+"""1 eV per particle in kJ/mol (= F / 1000 numerically, 96.485 kJ/mol)."""
+EV_KCAL_PER_MOL: float = EV_KJ_PER_MOL / CAL_J
+"""1 eV per particle in kcal/mol (23.0605 kcal/mol)."""
+HARTREE_KCAL_PER_MOL: float = HARTREE_EV * EV_KCAL_PER_MOL
+"""1 Hartree per particle in kcal/mol (627.5095)."""
+ANGSTROM_BOHR: float = 1.0 / BOHR_ANGSTROM
+"""1 Angstrom in bohr."""
+SECONDS_PER_HOUR: float = 3600.0
+SECONDS_PER_DAY: float = 86400.0
+STANDARD_TEMPERATURE_K: float = 298.15
+"""Standard temperature, K (IUPAC)."""
+AH_PER_MOL_ELECTRONS: float = FARADAY_C_PER_MOL / SECONDS_PER_HOUR
+"""Charge of one mole of electrons in Ah (26.801 Ah/mol)."""
+
+# --- absolute potential of the standard hydrogen electrode ---------------------
+ABSOLUTE_SHE_V: dict[str, float] = {
+    # Trasatti, Pure Appl. Chem. 1986, 58, 955 (IUPAC recommendation).
+    "trasatti": 4.44,
+    # Isse & Gennaro, J. Phys. Chem. B 2010, 114, 7894 (value from memory).
+    "isse-gennaro": 4.28,
+}
+"""Absolute potential of the SHE, V, by the convention's name."""
+
+# --- reference electrodes, potential vs SHE in V -------------------------------
+# SCE and Ag/AgCl (sat. KCl): Bard & Faulkner, Electrochemical Methods, 2nd ed.
+# Fc+/Fc in acetonitrile: +0.40 V vs SCE (Connelly & Geiger, Chem. Rev. 1996, 96, 877).
+SCE_VS_SHE_V: float = 0.241
+AGAGCL_SAT_KCL_VS_SHE_V: float = 0.197
+FC_VS_SCE_MECN_V: float = 0.40
+
+REFERENCE_ELECTRODES_V_VS_SHE: dict[str, float] = {
+    "she": 0.0,
+    "sce": SCE_VS_SHE_V,
+    "agagcl": AGAGCL_SAT_KCL_VS_SHE_V,
+    "fc": SCE_VS_SHE_V + FC_VS_SCE_MECN_V,
+}
+"""Reference electrode potentials vs SHE, V. Keys are the short names used in
+column names (``potential_v_vs_fc``) and campaign files."""
+
+REFERENCE_ALIASES: dict[str, str] = {
+    "she": "she",
+    "nhe": "she",
+    "sce": "sce",
+    "agagcl": "agagcl",
+    "ag/agcl": "agagcl",
+    "ag/agcl (sat. kcl)": "agagcl",
+    "fc": "fc",
+    "fc+/fc": "fc",
+    "fc/fc+": "fc",
+    "ferrocene": "fc",
+}
+
+
+def reference_key(name: str) -> str:
+    """Normalise a reference-electrode name to its short key (``she``, ``sce``, ``agagcl``, ``fc``)."""
+    key = REFERENCE_ALIASES.get(str(name).strip().lower())
+    if key is None:
+        allowed = ", ".join(sorted(set(REFERENCE_ALIASES.values())))
+        raise SettingsError(f"unknown reference electrode '{name}'; allowed: {allowed}")
+    return key
+
+
+def convert_potential(value_v: float, from_ref: str, to_ref: str) -> float:
+    """Convert a potential (V) measured against ``from_ref`` to one against ``to_ref``.
+
+    E(vs B) = E(vs A) + E(A vs SHE) - E(B vs SHE).
+    """
+    a = REFERENCE_ELECTRODES_V_VS_SHE[reference_key(from_ref)]
+    b = REFERENCE_ELECTRODES_V_VS_SHE[reference_key(to_ref)]
+    return value_v + a - b
+
+
+def hartree_to_ev(energy_eh: float) -> float:
+    """Hartree to eV (CODATA 2018)."""
+    return energy_eh * HARTREE_EV
+
+
+def rt_ln10_kcal_per_mol(temperature_k: float = STANDARD_TEMPERATURE_K) -> float:
+    """RT ln(10) in kcal/mol: the free-energy change per decade of a rate constant."""
+    return GAS_CONSTANT_J_PER_MOL_K * temperature_k * math.log(10.0) / (CAL_J * 1000.0)
