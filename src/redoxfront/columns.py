@@ -1,0 +1,67 @@
+"""Column names shared between pipeline steps: one source of truth.
+
+Every column that carries a unit names it (``_v``, ``_ev``, ``_h``, ...);
+potentials also name their reference electrode (``_v_vs_fc``). Steps that read
+another step's table import the name from here, never spell it again.
+"""
+
+from __future__ import annotations
+
+ID = "id"
+SMILES = "smiles"
+CANONICAL_SMILES = "canonical_smiles"
+STATUS = "status"
+ROLE = "role"
+N_ELECTRONS = "n_electrons"
+MOLAR_MASS = "molar_mass_g_per_mol"
+"""Molar mass of the discharged salt or molecule including counterions, g/mol."""
+
+
+def potential_uncalibrated(ref: str, step: int | None = None) -> str:
+    """Raw semiempirical potential (shift + absolute SHE only), V vs ``ref``."""
+    s = "" if step is None else f"_{step}"
+    return f"potential{s}_uncalibrated_v_vs_{ref}"
+
+
+def potential_calibrated(ref: str) -> str:
+    """Potential after linear calibration against measured values, V vs ``ref``."""
+    return f"potential_calibrated_v_vs_{ref}"
+
+
+def potential_calibrated_pi_low(ref: str) -> str:
+    """Lower end of the 95 % prediction interval of the calibrated potential."""
+    return f"potential_calibrated_pi95_low_v_vs_{ref}"
+
+
+def potential_calibrated_pi_high(ref: str) -> str:
+    """Upper end of the 95 % prediction interval of the calibrated potential."""
+    return f"potential_calibrated_pi95_high_v_vs_{ref}"
+
+
+def potential_measured(ref: str) -> str:
+    """A user's measured potential converted to ``ref``, V."""
+    return f"potential_measured_v_vs_{ref}"
+
+
+CALIBRATION_STATUS = "calibration_status"
+"""'calibrated', 'calibrated (outside calibration range)' or 'uncalibrated'."""
+
+# decomposition rate: first order in 1/h, or second order in L/(mol h)
+LOG10_K_FIRST = "log10_k_per_h"
+LOG10_K_SECOND = "log10_k_l_per_mol_per_h"
+LOG10_K_PRED_FIRST = "log10_k_predicted_per_h"
+LOG10_K_PRED_SECOND = "log10_k_predicted_l_per_mol_per_h"
+PI_LOW_SUFFIX = "_pi95_low"
+PI_HIGH_SUFFIX = "_pi95_high"
+LEVERAGE = "leverage"
+LEVERAGE_THRESHOLD = "leverage_threshold"
+DOMAIN = "domain"
+"""'inside' or 'extrapolating' (leverage above h* = 3(p+1)/n, Tropsha 2010)."""
+
+HALF_LIFE = "half_life_h"
+CELL_VOLTAGE = "cell_voltage_v"
+CAPACITY_VOL = "capacity_ah_per_l"
+CAPACITY_GRAV = "capacity_mah_per_g"
+ENERGY_DENSITY = "energy_density_wh_per_l"
+PARETO_RANK = "pareto_rank"
+P_FRONT = "probability_on_front"
