@@ -92,3 +92,11 @@ KNEE = "knee"
 EXPECTED_HV_GAIN = "expected_hypervolume_gain"
 """Expected hypervolume gain of a pick, as a fraction of the normalised objective box."""
 PICK_ORDER = "pick_order"
+
+# --- calibration and rate model (appended by the statistics step) -------------
+CALIBRATION_GROUP = "calibration_group"
+"""Which calibration line a row used: 'all' (pooled) or its compound class."""
+STANDARDISED_RESIDUAL = "standardised_residual"
+"""Training rows: residual / (s sqrt(1 - h)), dimensionless (internally studentised)."""
+MODEL_SET = "model_set"
+"""'train', 'test' or '' (candidate without a measured rate)."""
