@@ -110,3 +110,11 @@ def hartree_to_ev(energy_eh: float) -> float:
 def rt_ln10_kcal_per_mol(temperature_k: float = STANDARD_TEMPERATURE_K) -> float:
     """RT ln(10) in kcal/mol: the free-energy change per decade of a rate constant."""
     return GAS_CONSTANT_J_PER_MOL_K * temperature_k * math.log(10.0) / (CAL_J * 1000.0)
+
+# --- dipole moments --------------------------------------------------------------
+SPEED_OF_LIGHT_M_PER_S: float = 299792458.0
+"""Speed of light in vacuum, m/s (CODATA 2018, exact)."""
+DEBYE_C_M: float = 1e-21 / SPEED_OF_LIGHT_M_PER_S
+"""1 debye in C m (definition: 1e-18 statC cm)."""
+E_BOHR_DEBYE: float = ELEMENTARY_CHARGE_C * BOHR_ANGSTROM * 1e-10 / DEBYE_C_M
+"""1 e*bohr (atomic unit of dipole moment) in debye (2.5417 D)."""
