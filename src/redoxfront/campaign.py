@@ -84,7 +84,8 @@ def _check_type(value: Any, hint: Any, where: str) -> Any:
     if dataclasses.is_dataclass(hint):
         if not isinstance(value, Mapping):
             raise SettingsError(f"{where}: expected a table, got {value!r}")
-        return section_from_mapping(hint, value, where)
+        section, _, key = where.partition("] ")
+        return section_from_mapping(hint, value, f"{section.lstrip('[')}.{key}")
     return value
 
 

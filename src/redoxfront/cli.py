@@ -43,3 +43,33 @@ CAMPAIGN_ARG = click.argument(
 
 
 # ---- commands are added below, one per library function ----------------------
+
+
+@main.command("compute")
+@CAMPAIGN_ARG
+@click.option("--candidates", type=click.Path(exists=True, path_type=Path), default=None,
+              help="Candidate file (CSV or SDF); default: inputs.candidates of the campaign.")
+@click.option("--out", type=click.Path(path_type=Path), default=None,
+              help="Descriptor table to write; default: results/descriptors.csv.")
+@click.option("--workers", type=int, default=None, help="Parallel workers (default: compute.workers).")
+@click.option("--cluster", default=None, metavar="ADDRESS",
+              help="Run on a Dask scheduler at ADDRESS, or 'local' for a Dask cluster on this machine.")
+@click.option("--quiet", is_flag=True, help="No progress bar.")
+@friendly_errors
+def compute_command(campaign: Path, candidates: Path | None, out: Path | None, workers: int | None,
+                    cluster: str | None, quiet: bool) -> None:
+    """Optimise both redox states of every candidate and write uncalibrated potentials."""
+    from redoxfront.campaign import load_campaign
+    from redoxfront.compute import compute_campaign
+
+    camp = load_campaign(campaign)
+    report = compute_campaign(camp, candidates_path=candidates, out_path=out, workers=workers,
+                              dask_address=cluster, progress=not quiet)
+    ok = int((report.table.get("status", []) == "ok").sum()) if len(report.table) else 0
+    failed = len(report.table) - ok
+    click.echo(
+        f"{ok} candidates computed, {failed} failed, {len(report.problems)} input rows rejected; "
+        f"{report.new_engine_calls} new engine calls in {report.wall_time_s:.1f} s"
+    )
+    for p in report.problems:
+        click.echo(f"  rejected: {p}", err=True)

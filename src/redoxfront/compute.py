@@ -1,0 +1,292 @@
+"""The compute step: candidates to optimised redox states and uncalibrated potentials.
+
+Per candidate: conformer ensemble (RDKit) -> GFN-xTB + ALPB optimisation of the
+lowest K conformers in the discharged state -> the next redox state optimised from
+each of those geometries -> vertical single points -> lowest adiabatic energies ->
+potentials. Every state is stored in the SQLite store as soon as it is done;
+a rerun reads it back instead of computing it again.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from rdkit import Chem
+
+from redoxfront import columns as C
+from redoxfront.campaign import Campaign, ComputeSettings
+from redoxfront.errors import EngineError, InputError, RedoxfrontError
+from redoxfront.executors import map_tasks
+from redoxfront.optimize import optimize_geometry
+from redoxfront.potentials import potential_v, reduction_free_energy_ev
+from redoxfront.records import CandidateStates, ConformerResult, StateResult
+from redoxfront.store import Store
+from redoxfront.structures import Candidate, RedoxState, generate_conformers, read_candidates, redox_states
+from redoxfront.units import HARTREE_EV
+from redoxfront.xtb import Engine, make_engine
+
+
+@dataclass(frozen=True)
+class CandidateOutcome:
+    """What one task returns: the states (or a failure) and what it cost."""
+
+    candidate: Candidate
+    states: CandidateStates | None
+    failure: str | None
+    conformers_embedded: int
+    new_engine_calls: int
+    new_engine_seconds: float
+    payloads: dict[str, dict[str, Any]] = field(default_factory=dict)
+    """Freshly computed state payloads, for the caller to store (Dask path)."""
+
+
+def _optimise_state(
+    engine: Engine,
+    numbers: np.ndarray,
+    starts: list[np.ndarray],
+    state: RedoxState,
+    vertical: RedoxState,
+    settings: ComputeSettings,
+) -> StateResult:
+    """Optimise one redox state from each start geometry; add the vertical energy of ``vertical``."""
+    t0 = time.perf_counter()
+    s0 = engine.stats.seconds
+    confs = []
+    for i, start in enumerate(starts):
+        spin = settings.spin_polarized and state.uhf > 0
+        opt = optimize_geometry(engine, numbers, start, state.charge, state.uhf, settings.optimizer,
+                                spin_polarized=spin)
+        vert = engine.compute(numbers, opt.positions_angstrom, vertical.charge, vertical.uhf,
+                              spin_polarized=settings.spin_polarized and vertical.uhf > 0)
+        r = opt.result
+        confs.append(ConformerResult(
+            positions_angstrom=opt.positions_angstrom,
+            energy_eh=r.energy_eh,
+            charges=r.charges,
+            homo_eh=r.homo_eh,
+            lumo_eh=r.lumo_eh,
+            dipole_au=r.dipole_au,
+            gradient_calls=opt.gradient_calls,
+            converged=opt.converged,
+            source_conformer=i,
+            vertical_energy_eh=vert.energy_eh,
+            spin_density=r.spin_populations,
+        ))
+    return StateResult(
+        state=state.name, charge=state.charge, uhf=state.uhf, conformers=tuple(confs),
+        wall_time_s=time.perf_counter() - t0, engine_time_s=engine.stats.seconds - s0,
+    )
+
+
+def compute_candidate(
+    candidate: Candidate, settings: ComputeSettings, store_path: str | None, stored: dict[str, dict] | None = None
+) -> CandidateOutcome:
+    """Compute (or read back) every redox state of one candidate.
+
+    ``store_path``: write each state to this store as soon as it is done (local runs).
+    ``stored``: payloads already known for this candidate (read by the caller).
+    """
+    key_hash = settings.result_hash()
+    store = Store(store_path) if store_path else None
+    known = dict(stored or {})
+    engine = make_engine(settings.engine, settings.method, settings.solvent)
+    payloads: dict[str, dict[str, Any]] = {}
+    embedded = 0
+    mol_h = Chem.AddHs(Chem.MolFromSmiles(candidate.main_smiles))
+    numbers = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
+    plan = redox_states(mol_h, candidate.role, candidate.n_electrons)
+    results: dict[str, StateResult] = {}
+    failure = None
+    try:
+        for k, state in enumerate(plan):
+            payload = known.get(state.name)
+            if payload is None and store is not None:
+                payload = store.get(candidate.main_smiles, state.name, key_hash)
+            if payload is None:
+                vertical = plan[k + 1] if k + 1 < len(plan) else plan[k - 1]
+                try:
+                    if k == 0:
+                        starts, embedded = generate_conformers(mol_h, settings.conformers, settings.seed)
+                    else:
+                        starts = [c.positions_angstrom for c in results[plan[k - 1].name].conformers]
+                    sr = _optimise_state(engine, numbers, starts, state, vertical, settings)
+                    payload = sr.to_json()
+                    payload["conformers_embedded"] = embedded
+                except (EngineError, InputError) as exc:
+                    payload = {"failed": f"{state.name} state: {getattr(exc, 'reason', exc)}"}
+                payloads[state.name] = payload
+                if store is not None:
+                    store.put(candidate.main_smiles, state.name, key_hash, payload)
+            if "failed" in payload:
+                failure = payload["failed"]
+                break
+            if k == 0:
+                embedded = int(payload.get("conformers_embedded", 0))
+            results[state.name] = StateResult.from_json(payload)
+    finally:
+        if store is not None:
+            store.close()
+    states = None if failure else CandidateStates(candidate.id, candidate.main_smiles, results)
+    return CandidateOutcome(candidate, states, failure, embedded, engine.stats.calls,
+                            engine.stats.seconds, payloads)
+
+
+def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[str, Any]:
+    """One row of the descriptor table: identity, status, energies, potentials, cost."""
+    cand = outcome.candidate
+    ref = settings.reference
+    row: dict[str, Any] = {
+        C.ID: cand.id,
+        C.SMILES: cand.smiles,
+        C.CANONICAL_SMILES: cand.main_smiles,
+        "counterions": ".".join(cand.counterions),
+        C.ROLE: cand.role,
+        C.N_ELECTRONS: cand.n_electrons,
+        C.MOLAR_MASS: round(cand.molar_mass_g_per_mol, 3),
+        "heavy_atoms": cand.heavy_atoms,
+    }
+    if outcome.states is None:
+        row[C.STATUS] = f"failed: {outcome.failure}"
+        row.update(cand.extra)
+        return row
+    states = list(outcome.states.states.values())
+    first, last = states[0], states[-1]
+    steps = []
+    for prev, nxt in zip(states[:-1], states[1:]):
+        dg = reduction_free_energy_ev(prev.lowest.energy_eh, nxt.lowest.energy_eh, cand.role)
+        steps.append(potential_v(dg, shift_ev=settings.ipea_shift_ev, absolute_she=settings.absolute_she, reference=ref))
+    row[C.STATUS] = "ok"
+    row[C.potential_uncalibrated(ref)] = float(np.mean(steps))
+    if len(steps) == 2:
+        row[C.potential_uncalibrated(ref, 1)] = steps[0]
+        row[C.potential_uncalibrated(ref, 2)] = steps[1]
+    row["charge_discharged"] = first.charge
+    row["charge_charged"] = last.charge
+    row["multiplicity_discharged"] = first.multiplicity
+    row["multiplicity_charged"] = last.multiplicity
+    row["adiabatic_change_on_charging_ev"] = (last.lowest.energy_eh - first.lowest.energy_eh) * HARTREE_EV
+    low = first.lowest
+    row["vertical_change_on_charging_ev"] = (low.vertical_energy_eh - low.energy_eh) * HARTREE_EV
+    for name, st in (("discharged", first), ("charged", last)):
+        c = st.lowest
+        row[f"homo_{name}_ev"] = c.homo_eh * HARTREE_EV
+        row[f"lumo_{name}_ev"] = c.lumo_eh * HARTREE_EV
+        row[f"gap_{name}_ev"] = (c.lumo_eh - c.homo_eh) * HARTREE_EV
+    row["conformers_embedded"] = outcome.conformers_embedded
+    row["conformers_refined"] = len(first.conformers)
+    row["gradient_calls"] = sum(c.gradient_calls for s in states for c in s.conformers)
+    row["optimisations_converged"] = all(c.converged for s in states for c in s.conformers)
+    row["wall_time_s"] = round(sum(s.wall_time_s for s in states), 3)
+    row["engine_time_s"] = round(sum(s.engine_time_s for s in states), 3)
+    row["from_store"] = outcome.new_engine_calls == 0
+    row.update(cand.extra)
+    return row
+
+
+@dataclass(frozen=True)
+class ComputeReport:
+    """Result of a compute run: the table, the rejected rows and the cost of this run."""
+
+    table: pd.DataFrame
+    problems: list[InputError]
+    outcomes: list[CandidateOutcome]
+    new_engine_calls: int
+    new_engine_seconds: float
+    wall_time_s: float
+
+
+def compute_candidates(
+    candidates: list[Candidate],
+    settings: ComputeSettings,
+    store_path: str | Path,
+    *,
+    workers: int | None = None,
+    dask_address: str | None = None,
+    progress: bool = True,
+) -> tuple[list[CandidateOutcome], float]:
+    """Compute every candidate (local pool or Dask); results in input order."""
+    t0 = time.perf_counter()
+    store_path = str(store_path)
+    workers = settings.workers if workers is None else workers
+    key_hash = settings.result_hash()
+    outcomes: dict[str, CandidateOutcome] = {}
+    known: dict[str, dict[str, dict]] = {}
+    with Store(store_path) as store:  # creates the file and schema before workers open it
+        for c in candidates:
+            plan = redox_states(Chem.AddHs(Chem.MolFromSmiles(c.main_smiles)), c.role, c.n_electrons)
+            found = {s.name: p for s in plan if (p := store.get(c.main_smiles, s.name, key_hash)) is not None}
+            if len(found) == len(plan) or any("failed" in p for p in found.values()):
+                outcomes[c.id] = compute_candidate(c, settings, None, found)  # read back, no engine call
+            else:
+                known[c.id] = found
+    pending = [c for c in candidates if c.id not in outcomes]
+    if dask_address is None:
+        task_args: tuple[Any, ...] = (settings, store_path)
+        items: list[Any] = pending
+        func: Any = compute_candidate
+    else:  # cluster workers may not see this file system: send known states, store results here
+        items = [(c, known[c.id]) for c in pending]
+        task_args = (settings,)
+        func = _dask_task
+    with Store(store_path) as store:
+        for out in map_tasks(func, items, args=task_args, workers=workers,
+                             threads_per_worker=settings.threads_per_worker, dask_address=dask_address,
+                             progress=progress, desc="redox states"):
+            for state, payload in out.payloads.items():
+                store.put(out.candidate.main_smiles, state, key_hash, payload)
+            outcomes[out.candidate.id] = out
+    return [outcomes[c.id] for c in candidates], time.perf_counter() - t0
+
+
+def _dask_task(item: tuple[Candidate, dict], settings: ComputeSettings) -> CandidateOutcome:
+    cand, stored = item
+    return compute_candidate(cand, settings, None, stored)
+
+
+def compute_campaign(
+    campaign: Campaign,
+    *,
+    candidates_path: str | Path | None = None,
+    out_path: str | Path | None = None,
+    workers: int | None = None,
+    dask_address: str | None = None,
+    progress: bool = True,
+) -> ComputeReport:
+    """Read the campaign's candidates, compute them, write ``results/descriptors.csv``.
+
+    Bad rows are written to ``results/input_problems.csv`` with row, field and reason;
+    they never stop the batch.
+    """
+    settings = campaign.compute
+    path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates)
+    candidates, problems = read_candidates(path, settings)
+    outcomes, wall = compute_candidates(candidates, settings, campaign.store_path, workers=workers,
+                                        dask_address=dask_address, progress=progress)
+    table = pd.DataFrame([candidate_row(o, settings) for o in outcomes])
+    out = Path(out_path) if out_path else campaign.results_dir / "descriptors.csv"
+    out.parent.mkdir(parents=True, exist_ok=True)
+    table.to_csv(out, index=False)
+    problems_table = pd.DataFrame(
+        [{"file": p.source, "row": p.row, "field": p.field, "reason": p.reason} for p in problems],
+        columns=["file", "row", "field", "reason"],
+    )
+    problems_table.to_csv(out.parent / "input_problems.csv", index=False)
+    return ComputeReport(
+        table=table,
+        problems=problems,
+        outcomes=outcomes,
+        new_engine_calls=sum(o.new_engine_calls for o in outcomes),
+        new_engine_seconds=sum(o.new_engine_seconds for o in outcomes),
+        wall_time_s=wall,
+    )
+
+
+__all__ = [
+    "CandidateOutcome", "ComputeReport", "candidate_row", "compute_campaign", "compute_candidate",
+    "compute_candidates", "RedoxfrontError",
+]

@@ -1,0 +1,77 @@
+"""The SQLite store: every computed redox state, keyed by molecule, state and settings.
+
+Keys are (canonical main-fragment SMILES, state name, settings hash). The hash
+covers every setting that changes energies or geometries
+(:meth:`~redoxfront.campaign.ComputeSettings.result_hash`), so a changed setting
+misses the cache and an unchanged one recomputes nothing. WAL journal mode lets
+several processes read while one writes; each write is its own short transaction,
+so a killed run loses at most the state it was computing.
+"""
+
+from __future__ import annotations
+
+import json
+import sqlite3
+import time
+from pathlib import Path
+from typing import Any
+
+from redoxfront.errors import RedoxfrontError
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS states (
+    smiles TEXT NOT NULL,
+    state TEXT NOT NULL,
+    settings_hash TEXT NOT NULL,
+    payload TEXT NOT NULL,
+    created_unix REAL NOT NULL,
+    PRIMARY KEY (smiles, state, settings_hash)
+)
+"""
+
+
+class Store:
+    """A small key-value store of JSON payloads in one SQLite file."""
+
+    def __init__(self, path: str | Path, timeout_s: float = 120.0) -> None:
+        self.path = Path(path)
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            self._con = sqlite3.connect(self.path, timeout=timeout_s, isolation_level=None)
+            self._con.execute("PRAGMA journal_mode=WAL")
+            self._con.execute("PRAGMA synchronous=NORMAL")
+            self._con.execute(_SCHEMA)
+        except sqlite3.DatabaseError as exc:
+            raise RedoxfrontError(f"cannot open store {self.path}: {exc}; move the file away to start afresh") from exc
+
+    def get(self, smiles: str, state: str, settings_hash: str) -> dict[str, Any] | None:
+        """The stored payload, or None."""
+        row = self._con.execute(
+            "SELECT payload FROM states WHERE smiles=? AND state=? AND settings_hash=?",
+            (smiles, state, settings_hash),
+        ).fetchone()
+        return None if row is None else json.loads(row[0])
+
+    def put(self, smiles: str, state: str, settings_hash: str, payload: dict[str, Any]) -> None:
+        """Store a payload; an existing record for the same key is kept (first writer wins)."""
+        self._con.execute(
+            "INSERT OR IGNORE INTO states VALUES (?, ?, ?, ?, ?)",
+            (smiles, state, settings_hash, json.dumps(payload), time.time()),
+        )
+
+    def count(self, settings_hash: str | None = None) -> int:
+        """Number of stored states (for one settings hash, if given)."""
+        if settings_hash is None:
+            return self._con.execute("SELECT COUNT(*) FROM states").fetchone()[0]
+        return self._con.execute(
+            "SELECT COUNT(*) FROM states WHERE settings_hash=?", (settings_hash,)
+        ).fetchone()[0]
+
+    def close(self) -> None:
+        self._con.close()
+
+    def __enter__(self) -> "Store":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()

