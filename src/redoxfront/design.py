@@ -129,7 +129,7 @@ class TrainingDesign:
     skipped_columns: tuple[str, ...]
 
     def to_frame(self) -> pd.DataFrame:
-        return pd.DataFrame({columns.ID: list(self.picks), "pick_order": range(1, len(self.picks) + 1)})
+        return pd.DataFrame({columns.ID: list(self.picks), columns.PICK_ORDER: range(1, len(self.picks) + 1)})
 
 
 def design_training_set(
