@@ -100,3 +100,30 @@ STANDARDISED_RESIDUAL = "standardised_residual"
 """Training rows: residual / (s sqrt(1 - h)), dimensionless (internally studentised)."""
 MODEL_SET = "model_set"
 """'train', 'test' or '' (candidate without a measured rate)."""
+
+# ---- descriptors (redoxfront.descriptors) ----------------------------------------
+DESCRIPTOR_NOTES = "descriptor_notes"
+"""Per-row reasons why some descriptor values are empty ('; '-separated)."""
+REORGANISATION_ENERGY = "reorganisation_energy_ev"
+"""Four-point inner-sphere reorganisation energy of the first redox couple, eV."""
+ENSEMBLE_STATS: tuple[str, ...] = ("mean", "min", "max")
+"""Boltzmann mean, minimum and maximum over conformers within the energy window."""
+
+
+def descriptor_column(
+    quantity: str, site: str | None = None, state: str | None = None, stat: str = "mean"
+) -> str:
+    """Name of a conformer-ensemble descriptor column.
+
+    ``quantity`` carries its unit (``sterimol_l_angstrom``); then the site name, the
+    redox state where it matters, and the statistic, e.g.
+    ``descriptor_column("partial_charge_e", "tail", "charged", "min")`` ->
+    ``partial_charge_e_tail_charged_min``.
+    """
+    parts = [quantity] + [p for p in (site, state) if p] + [stat]
+    return "_".join(parts)
+
+
+def conformers_used_column(state: str) -> str:
+    """Number of conformers of ``state`` within the descriptor energy window."""
+    return f"n_conformers_used_{state}"

@@ -1,0 +1,387 @@
+"""Steric and electronic descriptors of one candidate from its conformer ensembles.
+
+Units are in every column name (``_angstrom``, ``_angstrom2``, ``_percent``, ``_ev``,
+``_debye``, ``_e``); spin densities are in electrons (alpha - beta).
+
+:func:`descriptors_for_candidate` turns the computed redox states of one candidate
+(:class:`redoxfront.records.CandidateStates`) into one flat row: per named site
+(campaign ``[sites]``) Sterimol L/B1/B5, ring-plane clearance, percent buried volume,
+accessible surface area, spin density and partial charges; per candidate the largest
+spin density on a carbon, the spin-weighted exposure, HOMO/LUMO/gap, dipole moment,
+the four-point reorganisation energy and a ``descriptor_notes`` column that says why any
+value is empty. Every conformer-dependent value comes as Boltzmann mean, minimum and
+maximum over conformers within an energy window (:mod:`redoxfront.descriptors.ensemble`).
+Settings are the campaign's ``[descriptors]`` section (:class:`DescriptorSettings`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Callable, Mapping
+
+import numpy as np
+from rdkit import Chem
+
+from redoxfront import columns
+from redoxfront.campaign import bounded, choice, section_from_mapping
+from redoxfront.descriptors.buried_volume import percent_buried_volume, sphere_grid
+from redoxfront.descriptors.clearance import ring_of_attachment, ring_plane_clearance
+from redoxfront.descriptors.electronic import (
+    atomic_spin_populations,
+    dipole_debye,
+    reorganisation_energy,
+)
+from redoxfront.descriptors.ensemble import EnsembleWeights, boltzmann_weights, summarise
+from redoxfront.descriptors.sites import (
+    SiteMatch,
+    SitesSettings,
+    SiteSpec,
+    match_sites,
+    sites_from_mapping,
+)
+from redoxfront.descriptors.sterimol import substituent_atoms, sterimol, vdw_radii
+from redoxfront.descriptors.surface import atom_sasa
+from redoxfront.errors import RedoxfrontError
+from redoxfront.records import (
+    STATE_CHARGED,
+    STATE_DISCHARGED,
+    STATE_INTERMEDIATE,
+    CandidateStates,
+    StateResult,
+)
+from redoxfront.units import HARTREE_EV, STANDARD_TEMPERATURE_K
+
+__all__ = [
+    "DescriptorSettings",
+    "SitesSettings",
+    "SiteSpec",
+    "atomic_spin_populations",
+    "descriptor_columns",
+    "descriptors_for_candidate",
+    "sites_from_mapping",
+]
+
+STATES: tuple[str, ...] = (STATE_DISCHARGED, STATE_INTERMEDIATE, STATE_CHARGED)
+
+
+@dataclass(frozen=True)
+class DescriptorSettings:
+    """The campaign's ``[descriptors]`` section: geometry source, radii and grid settings."""
+
+    geometry_state: str = field(
+        default=STATE_CHARGED, metadata=choice(STATE_DISCHARGED, STATE_INTERMEDIATE, STATE_CHARGED)
+    )
+    """Redox state whose conformers give the steric descriptors."""
+    sterimol_radii: str = field(default="cpk", metadata=choice("cpk", "bondi"))
+    sterimol_l_origin: str = field(default="verloop", metadata=choice("verloop", "attachment"))
+    sterimol_l_correction_angstrom: float = field(default=0.40, metadata=bounded(0.0, 5.0))
+    buried_volume_sphere_radius_angstrom: float = field(default=3.5, metadata=bounded(0.5, 20.0))
+    buried_volume_radii_scale: float = field(default=1.17, metadata=bounded(0.5, 3.0))
+    buried_volume_include_hydrogens: bool = False
+    buried_volume_include_site_atom: bool = False
+    buried_volume_grid_spacing_angstrom: float = field(default=0.1, metadata=bounded(0.02, 0.5))
+    clearance_radii: str = field(default="bondi", metadata=choice("bondi", "cpk"))
+    surface_probe_radius_angstrom: float = field(default=1.4, metadata=bounded(0.0, 5.0))
+    surface_points_per_atom: int = field(default=480, metadata=bounded(50, 5000))
+    energy_window_kcal_per_mol: float = field(default=3.0, metadata=bounded(0.0, None))
+    temperature_k: float = field(default=STANDARD_TEMPERATURE_K, metadata=bounded(1.0, None))
+
+
+def _settings(
+    sites: SitesSettings | Mapping[str, Any] | None,
+    desc: DescriptorSettings | Mapping[str, Any] | None,
+) -> tuple[SitesSettings, DescriptorSettings]:
+    s = sites if isinstance(sites, SitesSettings) else sites_from_mapping(sites)
+    d = desc if isinstance(desc, DescriptorSettings) else section_from_mapping(
+        DescriptorSettings, desc, "descriptors"
+    )
+    return s, d
+
+
+def _is_bond(spec: SiteSpec) -> bool:
+    return len(spec.map_numbers if spec.map_numbers is not None else spec.atoms) == 2
+
+
+_SITE_ATOM_QUANTITIES = ("buried_volume_percent", "sasa_angstrom2", "spin_density")
+_SITE_BOND_QUANTITIES = (
+    "sterimol_l_angstrom",
+    "sterimol_b1_angstrom",
+    "sterimol_b5_angstrom",
+    "ring_clearance_angstrom",
+    "ring_clearance_above_angstrom",
+    "ring_clearance_below_angstrom",
+)
+_GLOBAL_QUANTITIES = ("spin_density_max_carbon", "spin_exposure_angstrom2")
+_STATE_QUANTITIES = ("homo_ev", "lumo_ev", "homo_lumo_gap_ev", "dipole_debye")
+
+
+def descriptor_columns(
+    sites_settings: SitesSettings | Mapping[str, Any] | None,
+    states: tuple[str, ...] = (STATE_DISCHARGED, STATE_CHARGED),
+) -> list[str]:
+    """Every column :func:`descriptors_for_candidate` returns, in order, for these sites/states."""
+    sites, _ = _settings(sites_settings, None)
+    out: list[str] = []
+
+    def add(quantity: str, site: str | None = None, state: str | None = None) -> None:
+        out.extend(columns.descriptor_column(quantity, site, state, st) for st in columns.ENSEMBLE_STATS)
+
+    for spec in sites.sites:
+        quantities = (_SITE_BOND_QUANTITIES if _is_bond(spec) else ()) + _SITE_ATOM_QUANTITIES
+        for q in quantities:
+            add(q, spec.name)
+        for st in states:
+            add("partial_charge_e", spec.name, st)
+    for q in _GLOBAL_QUANTITIES:
+        add(q)
+    for st in states:
+        for q in _STATE_QUANTITIES:
+            add(q, None, st)
+    out.extend(columns.conformers_used_column(st) for st in states)
+    out.extend([columns.REORGANISATION_ENERGY, columns.DESCRIPTOR_NOTES])
+    return out
+
+
+def _radical_state(cs: CandidateStates) -> StateResult | None:
+    for name in (STATE_CHARGED, STATE_INTERMEDIATE, STATE_DISCHARGED):
+        st = cs.states.get(name)
+        if st is not None and st.uhf > 0 and st.conformers:
+            return st
+    return None
+
+
+class _Row:
+    """Collects columns and notes; each per-conformer computation runs guarded."""
+
+    def __init__(self) -> None:
+        self.values: dict[str, float | str] = {}
+        self.notes: list[str] = []
+
+    def note(self, text: str) -> None:
+        if text not in self.notes:
+            self.notes.append(text)
+
+    def put(self, quantity: str, stats: Mapping[str, float], site: str | None = None,
+            state: str | None = None) -> None:
+        for st in columns.ENSEMBLE_STATS:
+            self.values[columns.descriptor_column(quantity, site, state, st)] = stats[st]
+
+    def per_conformer(
+        self,
+        quantities: tuple[str, ...],
+        state: StateResult,
+        ens: EnsembleWeights,
+        fn: Callable[[int], tuple[float, ...]],
+        site: str | None = None,
+        label: str = "",
+    ) -> None:
+        """Evaluate ``fn(conformer_index)`` on the used conformers and store summaries."""
+        vals = np.full((len(state.conformers), len(quantities)), np.nan)
+        for k in ens.used:
+            try:
+                vals[k] = fn(int(k))
+            except RedoxfrontError as exc:
+                self.note(f"{label}: {exc}" if label else str(exc))
+                break
+        for j, q in enumerate(quantities):
+            self.put(q, summarise(vals[:, j], ens), site, state.state if q == "partial_charge_e" else None)
+
+
+def descriptors_for_candidate(
+    mol_with_hs: Chem.Mol,
+    states: CandidateStates,
+    sites_settings: SitesSettings | Mapping[str, Any] | None,
+    descriptor_settings: DescriptorSettings | Mapping[str, Any] | None = None,
+) -> dict[str, float | str]:
+    """One flat row of descriptors for one computed candidate.
+
+    ``mol_with_hs`` must be ``Chem.AddHs(Chem.MolFromSmiles(states.smiles))`` (the atom
+    order of the records; atom-map numbers kept if sites use them). Settings may be the
+    validated dataclasses or the raw campaign tables. Values that cannot be computed are
+    NaN and ``descriptor_notes`` says why; chemistry misses never raise.
+    Columns: see :func:`descriptor_columns`.
+    """
+    sites, ds = _settings(sites_settings, descriptor_settings)
+    present = tuple(s for s in STATES if s in states.states and states.states[s].conformers)
+    report_states = tuple(
+        s for s in STATES if s in present or s in (STATE_DISCHARGED, STATE_CHARGED)
+    )
+    row = _Row()
+    for name in descriptor_columns(sites, report_states):
+        row.values[name] = float("nan")
+    n_atoms = mol_with_hs.GetNumAtoms()
+    for st_name in present:
+        for conf in states.states[st_name].conformers:
+            if np.shape(conf.positions_angstrom) != (n_atoms, 3):
+                row.note(
+                    f"{st_name} conformer {conf.source_conformer} has "
+                    f"{np.shape(conf.positions_angstrom)[0]} atoms, the molecule {n_atoms}; "
+                    "descriptors skipped"
+                )
+                row.values[columns.DESCRIPTOR_NOTES] = "; ".join(row.notes)
+                return row.values
+    matches = match_sites(mol_with_hs, sites)
+    for m in matches.values():
+        if not m.found:
+            row.note(str(m.reason))
+    ens = {
+        s: boltzmann_weights(
+            [c.energy_eh for c in states.states[s].conformers],
+            window_kcal_per_mol=ds.energy_window_kcal_per_mol,
+            temperature_k=ds.temperature_k,
+        )
+        for s in present
+    }
+    for s in present:
+        row.values[columns.conformers_used_column(s)] = float(len(ens[s].used))
+
+    _steric(row, mol_with_hs, states, ds, sites, matches, ens)
+    _electronic(row, mol_with_hs, states, ds, matches, ens, present)
+    row.values[columns.DESCRIPTOR_NOTES] = "; ".join(row.notes)
+    return row.values
+
+
+def _steric(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSettings,
+            sites: SitesSettings, matches: dict[str, SiteMatch],
+            ens: dict[str, EnsembleWeights]) -> None:
+    geo = cs.states.get(ds.geometry_state)
+    if geo is None or not geo.conformers:
+        row.note(f"no {ds.geometry_state} conformers; steric descriptors empty")
+        return
+    w = ens[ds.geometry_state]
+    try:
+        r_sterimol = vdw_radii(mol, ds.sterimol_radii)
+        r_clear = vdw_radii(mol, ds.clearance_radii)
+        r_bondi = vdw_radii(mol, "bondi")
+    except RedoxfrontError as exc:
+        row.note(str(exc))
+        return
+    r_bv = r_bondi * ds.buried_volume_radii_scale
+    heavy = np.array([a.GetAtomicNum() > 1 for a in mol.GetAtoms()])
+    grid = sphere_grid(ds.buried_volume_sphere_radius_angstrom, ds.buried_volume_grid_spacing_angstrom)
+    sasa_cache: dict[int, np.ndarray] = {}
+
+    def sasa(k: int) -> np.ndarray:
+        if k not in sasa_cache:
+            sasa_cache[k] = atom_sasa(
+                geo.conformers[k].positions_angstrom, r_bondi,
+                probe_angstrom=ds.surface_probe_radius_angstrom,
+                n_points=ds.surface_points_per_atom,
+            )
+        return sasa_cache[k]
+
+    for spec in sites.sites:
+        m = matches[spec.name]
+        if not m.found:
+            continue
+        centre = m.atoms[0]
+        include = np.ones(len(heavy), bool) if ds.buried_volume_include_hydrogens else heavy.copy()
+        include[centre] = ds.buried_volume_include_site_atom
+
+        def atom_values(k: int, centre: int = centre, include: np.ndarray = include) -> tuple[float, ...]:
+            x = geo.conformers[k].positions_angstrom
+            bv = percent_buried_volume(x, r_bv, centre, include, grid=grid,
+                                       sphere_radius_angstrom=ds.buried_volume_sphere_radius_angstrom)
+            return bv, float(sasa(k)[centre])
+
+        row.per_conformer(("buried_volume_percent", "sasa_angstrom2"), geo, w, atom_values,
+                          spec.name, f"site {spec.name}")
+        if not m.is_bond:
+            continue
+        a, b = m.atoms
+        try:
+            sub = substituent_atoms(mol, a, b)
+        except RedoxfrontError as exc:
+            row.note(f"site {spec.name}: {exc}")
+            continue
+        z_first = mol.GetAtomWithIdx(b).GetAtomicNum()
+
+        def sterimol_values(k: int, a: int = a, b: int = b, sub: np.ndarray = sub,
+                            z_first: int = z_first) -> tuple[float, ...]:
+            res = sterimol(geo.conformers[k].positions_angstrom, r_sterimol, a, b, sub,
+                           l_origin=ds.sterimol_l_origin,
+                           l_correction_angstrom=ds.sterimol_l_correction_angstrom,
+                           first_element=z_first)
+            return res.l_angstrom, res.b1_angstrom, res.b5_angstrom
+
+        row.per_conformer(_SITE_BOND_QUANTITIES[:3], geo, w, sterimol_values, spec.name,
+                          f"site {spec.name}")
+        try:
+            ring = ring_of_attachment(mol, a, b)
+        except RedoxfrontError as exc:
+            row.note(f"site {spec.name}: {exc}")
+            continue
+
+        def clearance_values(k: int, ring: tuple[int, ...] = ring,
+                             sub: np.ndarray = sub) -> tuple[float, ...]:
+            res = ring_plane_clearance(geo.conformers[k].positions_angstrom, r_clear, ring, sub)
+            return res.clearance_angstrom, res.above_angstrom, res.below_angstrom
+
+        row.per_conformer(_SITE_BOND_QUANTITIES[3:], geo, w, clearance_values, spec.name,
+                          f"site {spec.name}")
+
+
+def _electronic(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSettings,
+                matches: dict[str, SiteMatch], ens: dict[str, EnsembleWeights],
+                present: tuple[str, ...]) -> None:
+    masses = np.array([a.GetMass() for a in mol.GetAtoms()])
+    is_carbon = np.array([a.GetAtomicNum() == 6 for a in mol.GetAtoms()])
+    found = {n: m for n, m in matches.items() if m.found}
+    for s in present:
+        st = cs.states[s]
+
+        def state_values(k: int, st: StateResult = st) -> tuple[float, ...]:
+            c = st.conformers[k]
+            homo, lumo = c.homo_eh * HARTREE_EV, c.lumo_eh * HARTREE_EV
+            mu = dipole_debye(c.dipole_au, st.charge, c.positions_angstrom, masses)
+            return homo, lumo, lumo - homo, mu
+
+        vals = np.array([state_values(int(k)) if k in ens[s].used else [np.nan] * 4
+                         for k in range(len(st.conformers))])
+        for j, q in enumerate(_STATE_QUANTITIES):
+            row.put(q, summarise(vals[:, j], ens[s]), None, s)
+        for name, m in found.items():
+            q = np.array([float(np.asarray(c.charges)[m.atoms[0]]) for c in st.conformers])
+            row.put("partial_charge_e", summarise(q, ens[s]), name, s)
+    rad = _radical_state(cs)
+    if rad is None:
+        row.note("no open-shell state; spin descriptors empty")
+    else:
+        w = ens[rad.state]
+        spins = [c.spin_density for c in rad.conformers]
+        if any(spins[k] is None for k in w.used):
+            row.note(
+                f"no spin densities stored for the {rad.state} state; set spin_polarized = true "
+                "in [compute] to get them"
+            )
+        else:
+            r_bondi = vdw_radii(mol, "bondi")
+            n = len(rad.conformers)
+            max_c = np.full(n, np.nan)
+            exposure = np.full(n, np.nan)
+            for k in w.used:
+                sp = np.asarray(spins[k], dtype=float)
+                area = atom_sasa(rad.conformers[k].positions_angstrom, r_bondi,
+                                 probe_angstrom=ds.surface_probe_radius_angstrom,
+                                 n_points=ds.surface_points_per_atom)
+                max_c[k] = sp[is_carbon].max() if is_carbon.any() else np.nan
+                exposure[k] = float(sp @ area)
+            row.put("spin_density_max_carbon", summarise(max_c, w))
+            row.put("spin_exposure_angstrom2", summarise(exposure, w))
+            for name, m in found.items():
+                site_spin = np.array([np.nan if s is None else float(np.asarray(s)[m.atoms[0]])
+                                      for s in spins])
+                row.put("spin_density", summarise(site_spin, w), name)
+    # reorganisation energy of the first couple: discharged <-> next state
+    dis = cs.states.get(STATE_DISCHARGED)
+    other = cs.states.get(STATE_INTERMEDIATE) or cs.states.get(STATE_CHARGED)
+    lam = reorganisation_energy(dis, other) if dis is not None and other is not None else None
+    if lam is None:
+        row.note("reorganisation energy needs paired conformers with vertical energies")
+    else:
+        row.values[columns.REORGANISATION_ENERGY] = lam.total_ev
+        if lam.total_ev < -1e-3:
+            row.note(
+                f"negative reorganisation energy ({lam.total_ev:.3f} eV): an optimisation "
+                "did not reach the minimum of its state"
+            )
