@@ -362,14 +362,20 @@ def _point_level_to_cycles(df: pd.DataFrame, cols: dict[str, DetectedColumn],
 def flag_spikes(y: np.ndarray, threshold: float, window: int = 7) -> np.ndarray:
     """Points further than ``threshold`` robust standard deviations from a running median.
 
-    Robust scale: 1.4826 x median absolute deviation (Hampel identifier; Pearson,
-    IEEE Trans. Signal Process. 2002 style filter), floored at 0.1 % of the median value.
+    Robust scale: 1.4826 x median absolute deviation from the running median (Hampel
+    identifier; Hampel, J. Am. Stat. Assoc. 1974, 69, 383), floored at the median step
+    between neighbours and at 0.1 % of the median value. The first and last
+    ``window // 2`` points are not tested.
     """
     s = pd.Series(y, dtype=float)
     med = s.rolling(window, center=True, min_periods=window).median()  # edges untested
     resid = (s - med).abs()
-    scale = 1.4826 * float(np.nanmedian(resid)) if resid.notna().any() else 0.0
-    scale = max(scale, 1e-3 * abs(float(np.nanmedian(s))) if s.notna().any() else 0.0)
+    if not resid.notna().any():
+        return np.zeros(len(y), dtype=bool)
+    # floors: the typical step between neighbours (a spike shifts its neighbours' medians
+    # by about one step on a steep trend) and 0.1 % of the level
+    step = float(np.nanmedian(np.abs(np.diff(s.to_numpy()))))
+    scale = max(1.4826 * float(np.nanmedian(resid)), step, 1e-3 * abs(float(np.nanmedian(s))))
     if scale == 0.0:
         return np.zeros(len(y), dtype=bool)
     return (resid > threshold * scale).to_numpy()
