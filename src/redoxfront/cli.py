@@ -73,3 +73,23 @@ def compute_command(campaign: Path, candidates: Path | None, out: Path | None, w
     )
     for p in report.problems:
         click.echo(f"  rejected: {p}", err=True)
+
+
+@main.command("fade")
+@CAMPAIGN_ARG
+@click.option("--input", "input_path", type=click.Path(exists=True, path_type=Path), default=None,
+              metavar="FILE_OR_FOLDER",
+              help="Cycler or decay file, or a folder of them; default: inputs.cycling of the campaign.")
+@click.option("--out", type=click.Path(path_type=Path), default=None, metavar="DIR",
+              help="Folder for rates.csv, the fit tables, report and figures; default: results/.")
+@click.option("--quiet", is_flag=True, help="No progress bar.")
+@friendly_errors
+def fade_command(campaign: Path, input_path: Path | None, out: Path | None, quiet: bool) -> None:
+    """Fit capacity fade / decay kinetics and write the rate table (rates.csv)."""
+    from redoxfront.fade import fade_campaign
+
+    rates = fade_campaign(campaign, input_path=input_path, out_dir=out, progress=not quiet)
+    ok = rates["status"] == "ok"
+    click.echo(f"{int(ok.sum())} datasets fitted, {int((~ok).sum())} failed; see fade_report.md")
+    for _, r in rates[~ok].iterrows():
+        click.echo(f"  {r['id']}: {r['status']}", err=True)
