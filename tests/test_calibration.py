@@ -141,3 +141,16 @@ def test_calibrate_campaign_writes_files(tmp_path):
     (tmp_path / "campaign.toml").write_text('[calibration]\nper_clas = true\n')
     with pytest.raises(SettingsError, match="unknown key 'per_clas'"):
         calibrate_campaign(load_campaign(tmp_path))
+
+
+def test_cli_calibrate(tmp_path):
+    from click.testing import CliRunner
+
+    from redoxfront.cli import main
+
+    (tmp_path / "results").mkdir()
+    make_table().to_csv(tmp_path / "results" / "descriptors.csv", index=False)
+    (tmp_path / "campaign.toml").write_text('name = "invented"\n')
+    r = CliRunner().invoke(main, ["calibrate", str(tmp_path)])
+    assert r.exit_code == 0, r.output
+    assert "10 candidate(s): uncalibrated" in r.output

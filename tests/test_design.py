@@ -108,3 +108,23 @@ def test_campaign_writes_picks(tmp_path):
     assert out[columns.ID].tolist() == list(d.picks)
     assert out[columns.PICK_ORDER].tolist() == [1, 2, 3, 4]
     assert out["forced_in"].tolist() == [True, False, False, False]
+
+
+def test_cli_choose_training(tmp_path):
+    from click.testing import CliRunner
+
+    from redoxfront.cli import main
+
+    (tmp_path / "results").mkdir()
+    rng = np.random.default_rng(1)
+    pd.DataFrame({"id": [f"dmb-{i}" for i in range(12)], "status": "ok",
+                  "sterimol_l": rng.normal(size=12), "sterimol_b1": rng.normal(size=12)}
+                 ).to_csv(tmp_path / "results" / "descriptors.csv", index=False)
+    (tmp_path / "campaign.toml").write_text('name = "invented"\n')
+    r = CliRunner().invoke(main, ["choose-training", str(tmp_path), "--count", "3", "--made", "dmb-5",
+                                  "--skip", "dmb-1", "--columns", "sterimol_l,sterimol_b1"])
+    assert r.exit_code == 0, r.output
+    assert "  1  dmb-5  (made)" in r.output
+    assert r.output.count("dmb-") == 3
+    r = CliRunner().invoke(main, ["choose-training", str(tmp_path), "--count", "3", "--made", "nope"])
+    assert r.exit_code == 2 and "forced id(s) nope not in the table" in r.output

@@ -327,3 +327,17 @@ def test_fit_campaign_degenerate_and_settings_errors(tmp_path):
     folder = make_campaign(tmp_path / "c", model_toml='[model]\nterms = ["potential", "nope"]\n')
     with pytest.raises(DataError, match="nope"):
         fit_campaign(load_campaign(folder))
+
+
+def test_cli_fit_prints_summary_and_errors(tmp_path):
+    from click.testing import CliRunner
+
+    from redoxfront.cli import main
+
+    folder = make_campaign(tmp_path / "ok", model_toml="[model]\nn_permutations = 100\n")
+    r = CliRunner().invoke(main, ["fit", str(folder)])
+    assert r.exit_code == 0, r.output
+    assert "fitted on 16 rows" in r.output and "y-randomisation (100)" in r.output
+    bad = make_campaign(tmp_path / "bad", n=2)
+    r = CliRunner().invoke(main, ["fit", str(bad)])
+    assert r.exit_code == 2 and "error: 2 training rows" in r.output and "Traceback" not in r.output

@@ -276,6 +276,7 @@ def calibrate_campaign(campaign: Campaign) -> pd.DataFrame:
     d = report.to_dict()
     d["notes"] = notes + d["notes"]
     (campaign.results_dir / "calibration.json").write_text(json.dumps(d, indent=2), encoding="utf-8")
+    out.attrs["calibration"] = d
     if report.lines:
         from redoxfront.model_plots import calibration_parity
 

@@ -93,3 +93,64 @@ def fade_command(campaign: Path, input_path: Path | None, out: Path | None, quie
     click.echo(f"{int(ok.sum())} datasets fitted, {int((~ok).sum())} failed; see fade_report.md")
     for _, r in rates[~ok].iterrows():
         click.echo(f"  {r['id']}: {r['status']}", err=True)
+
+
+# ---- calibration, rate model, training-set design (statistics step) ----------
+
+
+@main.command("calibrate")
+@CAMPAIGN_ARG
+@friendly_errors
+def calibrate_command(campaign: Path) -> None:
+    """Calibrate computed potentials against measured ones (adds columns to descriptors.csv)."""
+    from redoxfront import columns
+    from redoxfront.calibration import calibrate_campaign
+    from redoxfront.campaign import load_campaign
+
+    table = calibrate_campaign(load_campaign(campaign))
+    info = table.attrs.get("calibration", {})
+    for line in info.get("lines", []):
+        click.echo(
+            f"[{line['group']}] measured = {line['intercept_v']:.3f} (+/- {line['intercept_se_v']:.3f}) V + "
+            f"{line['slope']:.3f} (+/- {line['slope_se']:.3f}) x computed; n {line['n']}, R2 {line['r2']:.3f}, "
+            f"RMSE {line['rmse_v']:.3f} V, LOO MAE {line['loo_mae_v']:.3f} V"
+        )
+    for status, count in table[columns.CALIBRATION_STATUS].value_counts().items():
+        click.echo(f"{count} candidate(s): {status}")
+    for note in info.get("notes", []):
+        click.echo(f"note: {note}", err=True)
+
+
+@main.command("fit")
+@CAMPAIGN_ARG
+@friendly_errors
+def fit_command(campaign: Path) -> None:
+    """Fit the decomposition-rate model, validate it and predict every candidate."""
+    from redoxfront.campaign import load_campaign
+    from redoxfront.regression import fit_campaign
+
+    click.echo(fit_campaign(load_campaign(campaign)).text())
+
+
+@main.command("choose-training")
+@CAMPAIGN_ARG
+@click.option("--count", "k", type=click.IntRange(1), required=True,
+              help="Size of the training set, including the --made candidates.")
+@click.option("--made", multiple=True, metavar="ID", help="Candidate already made (forced in); repeatable.")
+@click.option("--skip", multiple=True, metavar="ID", help="Candidate that cannot be made; repeatable.")
+@click.option("--columns", "cols", default=None, metavar="A,B,...",
+              help="Descriptor columns to span (default: every numeric descriptor column).")
+@friendly_errors
+def choose_training_command(campaign: Path, k: int, made: tuple[str, ...], skip: tuple[str, ...],
+                            cols: str | None) -> None:
+    """Pick which candidates to make first so the training set spans descriptor space."""
+    from redoxfront.design import choose_training_for_campaign
+
+    design = choose_training_for_campaign(
+        campaign, k, made, skip, [c.strip() for c in cols.split(",")] if cols else None
+    )
+    for n, i in enumerate(design.picks, 1):
+        click.echo(f"{n:3d}  {i}{'  (made)' if i in made else ''}")
+    if design.skipped_rows:
+        click.echo(f"left out (failed or missing descriptors): {', '.join(design.skipped_rows)}", err=True)
+    click.echo(f"spanned {len(design.columns)} descriptor columns; written to results/training_picks.csv")

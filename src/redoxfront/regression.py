@@ -596,6 +596,11 @@ def _read_rates(path: Path, target: str) -> tuple[pd.DataFrame, list[str]]:
     df[columns.ID] = df[columns.ID].astype(str)
     notes: list[str] = []
     df[target] = pd.to_numeric(df[target], errors="coerce")
+    if columns.STATUS in df.columns:
+        failed = df[columns.STATUS].astype(str).ne("ok")
+        if failed.any():
+            notes.append(f"rates with a failed fit, left out: {', '.join(df.loc[failed, columns.ID][:20])}")
+        df = df[~failed].copy()
     empty = df.loc[df[target].isna(), columns.ID].tolist()
     if empty:
         notes.append(f"rates without a value, left out: {', '.join(empty[:20])}")
