@@ -42,8 +42,9 @@ def test_longley_certified_values_to_seven_digits():
     np.testing.assert_allclose(m.se_, LONGLEY_SE, rtol=1e-7, atol=0)
     assert m.residual_standard_error_ == pytest.approx(LONGLEY_RESID_SD, rel=1e-7)
     assert m.r2_ == pytest.approx(LONGLEY_R2, rel=1e-9)
-    # our precision is well beyond the 7 digits required: 9 digits on every coefficient
+    # our precision is well beyond the 7 digits required: 9 digits on every estimate and SE
     np.testing.assert_allclose(m.coef_, LONGLEY_COEF, rtol=1e-9, atol=0)
+    np.testing.assert_allclose(m.se_, LONGLEY_SE, rtol=1e-9, atol=0)
 
 
 # ------------------------------------------------------- statsmodels cross-check
