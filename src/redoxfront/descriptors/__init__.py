@@ -355,7 +355,11 @@ def _electronic(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSet
                 "in [compute] to get them"
             )
         else:
-            r_bondi = vdw_radii(mol, "bondi")
+            try:
+                r_bondi = vdw_radii(mol, "bondi")
+            except RedoxfrontError as exc:
+                row.note(str(exc))
+                r_bondi = np.full(mol.GetNumAtoms(), np.nan)
             n = len(rad.conformers)
             max_c = np.full(n, np.nan)
             exposure = np.full(n, np.nan)
