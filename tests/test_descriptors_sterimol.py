@@ -80,9 +80,9 @@ def _idealised(name: str) -> tuple[np.ndarray, list[float]]:
     return np.array([np.zeros(3), *ring, *hs]), [R_H] + [R_CAR] * 6 + [R_H] * 5
 
 
-# Verloop's original program (CPK radii), L / B1 / B5 in Angstrom, as reproduced in
-# Brethome, Fletcher & Paton, ACS Catal. 2019, 9, 2313 (from memory; other tables differ
-# slightly, e.g. Me L 2.87).
+# Verloop's original STERIMOL program (CPK radii), L / B1 / B5 in Angstrom, values as
+# reproduced from that program (Verloop et al. 1976 definition; from memory of the
+# reproduced table, literature tables differ slightly, e.g. Me L 2.87).
 VERLOOP = {
     "H": (2.06, 1.00, 1.00),
     "Me": (3.00, 1.52, 2.04),
