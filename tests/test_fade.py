@@ -150,7 +150,7 @@ def test_second_order_decay_file_gives_k_in_l_per_mol_per_h(tmp_path: Path) -> N
 
 
 def test_beh_retention_per_day_to_first_order_k(tmp_path: Path) -> None:
-    # Beh et al., ACS Energy Lett. 2017, 2, 639: 99.967 %/day capacity retention;
+    # Beh et al., ACS Energy Lett. 2017, 2, 639 (page from memory): 99.967 %/day retention;
     # common practice, no source: first-order k = -ln(0.99967) / 1 day
     k = -math.log(0.99967) / 24.0
     assert first_order_k_from_retention(0.99967, 24.0) == pytest.approx(k, rel=1e-12)
