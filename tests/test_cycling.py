@@ -130,6 +130,17 @@ def test_per_cycle_repeats_spike_and_missing(tmp_path) -> None:
     assert "1 spike points" in text and ": 13" in text
 
 
+def test_per_cycle_table_with_mean_voltage_is_not_point_level(tmp_path) -> None:
+    path = tmp_path / "summary.csv"
+    pd.DataFrame({"Cycle Number": [1, 2, 3, 4, 5, 6], "Time (min)": [60, 120, 180, 240, 300, 360],
+                  "Mean Voltage (V)": 0.9, "Voltage (V)": 0.9,
+                  "Discharge Capacity (mAh)": [10.0, 9.9, 9.8, 9.7, 9.6, 9.5]}).to_csv(path, index=False)
+    s = load_series(path)
+    np.testing.assert_allclose(s.table[SIGNAL], [10.0, 9.9, 9.8, 9.7, 9.6, 9.5])
+    np.testing.assert_allclose(s.table[TIME_H], [1, 2, 3, 4, 5, 6])
+    assert s.n_used == 6
+
+
 def test_excel_input_second_sheet(tmp_path) -> None:
     df, caps = point_level_frame(n_cycles=6)
     path = tmp_path / "cell.xlsx"

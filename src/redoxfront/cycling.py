@@ -461,7 +461,7 @@ def load_series(
         df["_time_h"] = _fix_resets(df["_time_h"], "time", report, 0.0)
     df["_cycle"] = _fix_resets(df["_cycle"], "cycle counter", report, 1.0)
     caps = _capacity(df, cols, capacity_unit, report)
-    point_level = bool(df["_cycle"].duplicated().mean() > 0.3) or "voltage" in cols
+    point_level = bool(df["_cycle"].duplicated().mean() > 0.3)  # many rows per cycle
     if point_level:
         cyc = _point_level_to_cycles(df, cols, caps, source, report)
     else:
