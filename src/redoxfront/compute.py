@@ -10,7 +10,7 @@ a rerun reads it back instead of computing it again.
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -21,6 +21,7 @@ from rdkit import Chem
 from redoxfront import columns as C
 from redoxfront.campaign import Campaign, ComputeSettings
 from redoxfront.errors import EngineError, InputError, RedoxfrontError
+from redoxfront.descriptors import descriptors_for_candidate
 from redoxfront.executors import map_tasks
 from redoxfront.optimize import optimize_geometry
 from redoxfront.potentials import potential_v, reduction_free_energy_ev
@@ -43,6 +44,8 @@ class CandidateOutcome:
     new_engine_seconds: float
     payloads: dict[str, dict[str, Any]] = field(default_factory=dict)
     """Freshly computed state payloads, for the caller to store (Dask path)."""
+    row: dict[str, Any] = field(default_factory=dict)
+    """The candidate's row of the descriptor table (filled by :func:`candidate_task`)."""
 
 
 def _optimise_state(
@@ -64,6 +67,10 @@ def _optimise_state(
         vert = engine.compute(numbers, opt.positions_angstrom, vertical.charge, vertical.uhf,
                               spin_polarized=settings.spin_polarized and vertical.uhf > 0)
         r = opt.result
+        spin_density = r.spin_populations
+        if state.uhf > 0 and spin_density is None:  # spin density always from a spin-polarised point
+            spin_density = engine.compute(numbers, opt.positions_angstrom, state.charge, state.uhf,
+                                          spin_polarized=True).spin_populations
         confs.append(ConformerResult(
             positions_angstrom=opt.positions_angstrom,
             energy_eh=r.energy_eh,
@@ -75,7 +82,7 @@ def _optimise_state(
             converged=opt.converged,
             source_conformer=i,
             vertical_energy_eh=vert.energy_eh,
-            spin_density=r.spin_populations,
+            spin_density=spin_density,
         ))
     return StateResult(
         state=state.name, charge=state.charge, uhf=state.uhf, conformers=tuple(confs),
@@ -152,7 +159,6 @@ def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[
     }
     if outcome.states is None:
         row[C.STATUS] = f"failed: {outcome.failure}"
-        row.update(cand.extra)
         return row
     states = list(outcome.states.states.values())
     first, last = states[0], states[-1]
@@ -184,7 +190,6 @@ def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[
     row["wall_time_s"] = round(sum(s.wall_time_s for s in states), 3)
     row["engine_time_s"] = round(sum(s.engine_time_s for s in states), 3)
     row["from_store"] = outcome.new_engine_calls == 0
-    row.update(cand.extra)
     return row
 
 
@@ -208,8 +213,13 @@ def compute_candidates(
     workers: int | None = None,
     dask_address: str | None = None,
     progress: bool = True,
+    sections: dict[str, Any] | None = None,
 ) -> tuple[list[CandidateOutcome], float]:
-    """Compute every candidate (local pool or Dask); results in input order."""
+    """Compute every candidate and its descriptor row (local pool or Dask), in input order.
+
+    ``sections``: the campaign's raw ``sites`` and ``descriptors`` tables.
+    """
+    sections = sections or {}
     t0 = time.perf_counter()
     store_path = str(store_path)
     workers = settings.workers if workers is None else workers
@@ -221,20 +231,19 @@ def compute_candidates(
             plan = redox_states(Chem.AddHs(Chem.MolFromSmiles(c.main_smiles)), c.role, c.n_electrons)
             found = {s.name: p for s in plan if (p := store.get(c.main_smiles, s.name, key_hash)) is not None}
             if len(found) == len(plan) or any("failed" in p for p in found.values()):
-                outcomes[c.id] = compute_candidate(c, settings, None, found)  # read back, no engine call
+                outcomes[c.id] = candidate_task(c, settings, None, found, sections)  # read back only
             else:
                 known[c.id] = found
     pending = [c for c in candidates if c.id not in outcomes]
-    if dask_address is None:
-        task_args: tuple[Any, ...] = (settings, store_path)
-        items: list[Any] = pending
-        func: Any = compute_candidate
-    else:  # cluster workers may not see this file system: send known states, store results here
-        items = [(c, known[c.id]) for c in pending]
-        task_args = (settings,)
-        func = _dask_task
+    # cluster workers may not see this file system: they get the known states and the
+    # results are stored here; local workers write each state to the store themselves
+    local = dask_address is None
+    items = [(c, None if local else known[c.id]) for c in pending]
+    task_args = (settings, store_path if local else None, sections)
+    if not items:
+        return [outcomes[c.id] for c in candidates], time.perf_counter() - t0
     with Store(store_path) as store:
-        for out in map_tasks(func, items, args=task_args, workers=workers,
+        for out in map_tasks(_run_job, items, args=task_args, workers=workers,
                              threads_per_worker=settings.threads_per_worker, dask_address=dask_address,
                              progress=progress, desc="redox states"):
             for state, payload in out.payloads.items():
@@ -243,9 +252,30 @@ def compute_candidates(
     return [outcomes[c.id] for c in candidates], time.perf_counter() - t0
 
 
-def _dask_task(item: tuple[Candidate, dict], settings: ComputeSettings) -> CandidateOutcome:
-    cand, stored = item
-    return compute_candidate(cand, settings, None, stored)
+def candidate_task(
+    candidate: Candidate,
+    settings: ComputeSettings,
+    store_path: str | None,
+    stored: dict[str, dict] | None,
+    sections: dict[str, Any],
+) -> CandidateOutcome:
+    """Compute one candidate and its descriptor row (runs in a worker).
+
+    ``sections``: the campaign's raw ``sites`` and ``descriptors`` tables.
+    """
+    out = compute_candidate(candidate, settings, store_path, stored)
+    row = candidate_row(out, settings)
+    if out.states is not None:
+        mol_h = Chem.AddHs(Chem.MolFromSmiles(candidate.main_smiles))
+        row.update(descriptors_for_candidate(mol_h, out.states, sections.get("sites"),
+                                             sections.get("descriptors")))
+    row.update(candidate.extra)  # user columns last, unchanged
+    return replace(out, row=row)
+
+
+def _run_job(job: tuple[Candidate, dict | None], settings: ComputeSettings, store_path: str | None,
+             sections: dict[str, Any]) -> CandidateOutcome:
+    return candidate_task(job[0], settings, store_path, job[1], sections)
 
 
 def compute_campaign(
@@ -265,9 +295,10 @@ def compute_campaign(
     settings = campaign.compute
     path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates)
     candidates, problems = read_candidates(path, settings)
+    sections = {"sites": campaign.section("sites"), "descriptors": campaign.section("descriptors")}
     outcomes, wall = compute_candidates(candidates, settings, campaign.store_path, workers=workers,
-                                        dask_address=dask_address, progress=progress)
-    table = pd.DataFrame([candidate_row(o, settings) for o in outcomes])
+                                        dask_address=dask_address, progress=progress, sections=sections)
+    table = pd.DataFrame([o.row for o in outcomes])
     out = Path(out_path) if out_path else campaign.results_dir / "descriptors.csv"
     out.parent.mkdir(parents=True, exist_ok=True)
     table.to_csv(out, index=False)

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import multiprocessing
 import os
+import sys
 import warnings
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from typing import Any, Callable, Iterator, Sequence
@@ -60,6 +61,9 @@ def map_tasks(
             return
         workers = plan_workers(workers, threads_per_worker)
         if workers == 1 or len(items) <= 1:
+            if "tblite" not in sys.modules:  # OpenMP reads its thread count once, at load
+                for var in THREAD_VARIABLES:
+                    os.environ.setdefault(var, str(threads_per_worker))
             for item in items:
                 yield func(item, *args)
                 bar.update(1)

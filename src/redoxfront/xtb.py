@@ -111,6 +111,7 @@ class TbliteEngine:
             calc.add("alpb-solvation", solvent)
         if spin_polarized:
             calc.add("spin-polarization", 1.0)
+            calc.set("save-integrals", 1)
         self._calc, self._key, self._last = calc, key, None
         return calc
 
@@ -132,7 +133,7 @@ class TbliteEngine:
         eps = np.asarray(res.get("orbital-energies"), dtype=float)
         spin = None
         if occ.ndim == 2:  # spin-resolved: (2, norb)
-            spin = _spin_populations_tblite(res, np.asarray(numbers))
+            spin = _spin_populations_tblite(calc, res, len(numbers))
             occ_total = occ.sum(axis=0)
             eps = eps.mean(axis=0) if eps.ndim == 2 else eps
         else:
@@ -150,9 +151,23 @@ class TbliteEngine:
         return out
 
 
-def _spin_populations_tblite(res, numbers: np.ndarray) -> np.ndarray | None:
-    """Per-atom spin populations (alpha - beta) of a spin-resolved result; None if unavailable."""
-    return None
+def _spin_populations_tblite(calc, res, n_atoms: int) -> np.ndarray | None:
+    """Mulliken spin populations (alpha - beta) per atom, e; they sum to the unpaired electrons.
+
+    Gross populations diag(P_s S) of each spin channel, summed over the atom's
+    orbitals (Mulliken, J. Chem. Phys. 1955, 23, 1833). Needs tblite's saved
+    integrals (the overlap matrix); None when the result is not spin-resolved.
+    """
+    density = np.asarray(res.get("density-matrix"))
+    if density.ndim != 3 or density.shape[0] != 2:
+        return None
+    overlap = np.asarray(res.get("overlap-matrix"))
+    ao_atom = np.asarray(calc.get("shell-map"))[np.asarray(calc.get("orbital-map"))]
+    gross = np.einsum("sij,ji->si", density, overlap)
+    per_atom = np.zeros((2, n_atoms))
+    for spin in range(2):
+        np.add.at(per_atom[spin], ao_atom, gross[spin])
+    return per_atom[0] - per_atom[1]
 
 
 @dataclass

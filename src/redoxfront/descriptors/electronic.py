@@ -39,31 +39,13 @@ def atomic_spin_populations(
     Positions are converted to bohr with :data:`redoxfront.units.ANGSTROM_BOHR`.
     Raises EngineError when the engine fails.
     """
-    from tblite.interface import Calculator  # imported late: heavy and optional here
+    from redoxfront.xtb import TbliteEngine
 
-    z = np.asarray(numbers, dtype=int)
-    xyz = np.asarray(positions_angstrom, dtype=float) * ANGSTROM_BOHR
-    try:
-        calc = Calculator(method, z, xyz, charge=int(charge), uhf=int(uhf))
-        calc.set("verbosity", 0)
-        calc.set("save-integrals", 1)
-        calc.add("spin-polarization", 1.0)
-        if solvent and solvent != "none":
-            calc.add("alpb-solvation", solvent)
-        ao_atom = np.asarray(calc.get("shell-map"))[np.asarray(calc.get("orbital-map"))]
-        res = calc.singlepoint()
-        density = np.asarray(res.get("density-matrix"))
-        overlap = np.asarray(res.get("overlap-matrix"))
-    except Exception as exc:  # tblite raises its own runtime errors
-        raise EngineError(f"spin-polarised single point failed (charge {charge}, uhf {uhf}): {exc}") from exc
-    if density.ndim != 3 or density.shape[0] != 2:
-        # closed-shell / restricted result: no spin density
-        return np.zeros(len(z))
-    gross = np.einsum("sij,ji->si", density, overlap)  # per AO, per spin
-    per_atom = np.zeros((2, len(z)))
-    for s in range(2):
-        np.add.at(per_atom[s], ao_atom, gross[s])
-    return per_atom[0] - per_atom[1]
+    engine = TbliteEngine(method=method, solvent=solvent)
+    result = engine.compute(numbers, positions_angstrom, int(charge), int(uhf), spin_polarized=True)
+    if result.spin_populations is None:  # restricted closed shell: no spin density
+        return np.zeros(len(np.asarray(numbers)))
+    return result.spin_populations
 
 
 def dipole_debye(
