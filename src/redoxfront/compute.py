@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from rdkit import Chem
+from rdkit.Chem.rdMolDescriptors import CalcNumRotatableBonds
 
 from redoxfront import columns as C
 from redoxfront.campaign import Campaign, ComputeSettings
@@ -234,7 +235,8 @@ def compute_candidates(
                 outcomes[c.id] = candidate_task(c, settings, None, found, sections)  # read back only
             else:
                 known[c.id] = found
-    pending = [c for c in candidates if c.id not in outcomes]
+    # largest first: the pool's tail is then short jobs, not one long one
+    pending = sorted((c for c in candidates if c.id not in outcomes), key=_expected_cost, reverse=True)
     # cluster workers may not see this file system: they get the known states and the
     # results are stored here; local workers write each state to the store themselves
     local = dask_address is None
@@ -271,6 +273,12 @@ def candidate_task(
                                              sections.get("descriptors")))
     row.update(candidate.extra)  # user columns last, unchanged
     return replace(out, row=row)
+
+
+def _expected_cost(candidate: Candidate) -> float:
+    """Rough relative cost of a candidate: heavy atoms plus rotatable bonds, for scheduling."""
+    mol = Chem.MolFromSmiles(candidate.main_smiles)
+    return candidate.heavy_atoms + 3.0 * CalcNumRotatableBonds(mol)
 
 
 def _run_job(job: tuple[Candidate, dict | None], settings: ComputeSettings, store_path: str | None,
