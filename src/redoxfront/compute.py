@@ -127,9 +127,9 @@ def compute_candidate(
                     payload["conformers_embedded"] = embedded
                 except (EngineError, InputError) as exc:
                     payload = {"failed": f"{state.name} state: {getattr(exc, 'reason', exc)}"}
-                payloads[state.name] = payload
                 if store is not None:
-                    store.put(candidate.main_smiles, state.name, key_hash, payload)
+                    payload = store.put(candidate.main_smiles, state.name, key_hash, payload)
+                payloads[state.name] = payload
             if "failed" in payload:
                 failure = payload["failed"]
                 break

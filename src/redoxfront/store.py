@@ -52,12 +52,18 @@ class Store:
         ).fetchone()
         return None if row is None else json.loads(row[0])
 
-    def put(self, smiles: str, state: str, settings_hash: str, payload: dict[str, Any]) -> None:
-        """Store a payload; an existing record for the same key is kept (first writer wins)."""
+    def put(self, smiles: str, state: str, settings_hash: str, payload: dict[str, Any]) -> dict[str, Any]:
+        """Store a payload and return the stored one.
+
+        If another process stored the same key first, its record is kept and returned
+        (first writer wins), so every reader reports the same numbers.
+        """
         self._con.execute(
             "INSERT OR IGNORE INTO states VALUES (?, ?, ?, ?, ?)",
             (smiles, state, settings_hash, json.dumps(payload), time.time()),
         )
+        stored = self.get(smiles, state, settings_hash)
+        return payload if stored is None else stored
 
     def count(self, settings_hash: str | None = None) -> int:
         """Number of stored states (for one settings hash, if given)."""
