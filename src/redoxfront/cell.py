@@ -1,0 +1,330 @@
+"""Cell metrics per candidate: cell voltage, theoretical capacities, energy density and
+the half-life of the charged species, each with its 95 % interval where one exists.
+
+Units: potentials and voltages V, capacities Ah/L and mAh/g, energy density Wh/L,
+concentrations mol/L, rate constants 1/h (first order) or L/(mol h) (second order),
+half-lives h.
+
+Science (any electrochemistry or physical-chemistry text; values from redoxfront.units):
+- capacity per litre of one electrolyte Q = n F c / 3600 Ah/L (26.80 Ah/L per mol/L
+  per electron, CODATA 2018 Faraday constant); per gram n F / (3.6 M) mAh/g, with M the
+  molar mass of the salt including counterions.
+- energy density W = u V Q_c Q_p / (Q_c + Q_p) Wh/L on the two-tank basis: both
+  electrolytes' volumes count, the counter tank holding the same charge; with matched
+  capacities W = u V Q / 2 (all-vanadium worked example: 1.26 V, 1.6 mol/L, n = 1 gives
+  ~27 Wh/L, Darling et al., Energy Environ. Sci. 2014, 7, 3459). The one-tank basis
+  counts only the candidate's tank: W = u V Q. u is the usable fraction of the charge
+  (state-of-charge window).
+- half-life of the charged species: first order ln 2 / k, second order 1 / (k c0) with
+  c0 the operating concentration (charged at full state of charge).
+- directly computed, uncalibrated potentials are typically ~0.3 V off (Davis & Fry,
+  J. Phys. Chem. A 2010, 114, 12299); that is the default uncertainty used for them.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from redoxfront import columns as col
+from redoxfront.campaign import bounded, choice
+from redoxfront.errors import InputError, SettingsError
+from redoxfront.units import AH_PER_MOL_ELECTRONS
+
+TANK_BASES: tuple[str, ...] = ("two-tank", "one-tank")
+COUNTER_MODES: tuple[str, ...] = ("best-partner", "potential")
+TRUE_WORDS = frozenset({"true", "yes", "y", "1", "measured"})
+
+
+@dataclass(frozen=True)
+class CellSettings:
+    """Campaign section ``[cell]``: how candidates are turned into cell figures.
+
+    counter : 'best-partner' pairs each candidate with the candidate of the other role
+        that gives the largest voltage; 'potential' uses ``counter_potential_v``.
+    counter_potential_v : potential of the counter couple, V vs the campaign reference.
+    counter_capacity_ah_per_l : capacity of the counter electrolyte for 'potential'
+        mode, Ah/L; unset = the same as the candidate's (matched tanks).
+    concentration_mol_per_l : operating concentration of the candidate, mol/L.
+    solubility_mol_per_l : cap on the concentration, mol/L (a per-candidate column
+        ``solubility_mol_per_l`` caps further).
+    tank_basis : 'two-tank' (both electrolytes counted) or 'one-tank'.
+    utilisation : usable fraction of the theoretical charge (state-of-charge window).
+    rate_order : 1 (k in 1/h) or 2 (k in L/(mol h)) for the decomposition rate.
+    uncalibrated_uncertainty_v : half-width of the 95 % interval given to uncalibrated
+        potentials, V (~0.3 V typical; Davis & Fry, J. Phys. Chem. A 2010, 114, 12299).
+    """
+
+    counter: str = field(default="best-partner", metadata=choice(*COUNTER_MODES))
+    counter_potential_v: float | None = None
+    counter_capacity_ah_per_l: float | None = field(default=None, metadata=bounded(0.0, None))
+    concentration_mol_per_l: float = field(default=0.5, metadata=bounded(0.0, 30.0))
+    solubility_mol_per_l: float | None = field(default=None, metadata=bounded(0.0, None))
+    tank_basis: str = field(default="two-tank", metadata=choice(*TANK_BASES))
+    utilisation: float = field(default=1.0, metadata=bounded(0.0, 1.0))
+    rate_order: int = field(default=1, metadata=choice(1, 2))
+    uncalibrated_uncertainty_v: float = field(default=0.3, metadata=bounded(0.0, 5.0))
+
+    def __post_init__(self) -> None:
+        if self.counter == "potential" and self.counter_potential_v is None:
+            raise SettingsError(
+                "[cell] counter = 'potential' needs counter_potential_v (V vs the campaign "
+                "reference); add it or use counter = 'best-partner'"
+            )
+        if self.counter == "best-partner" and self.counter_potential_v is not None:
+            raise SettingsError(
+                "[cell] counter_potential_v is set but counter = 'best-partner'; "
+                "set counter = 'potential' to use it, or remove it"
+            )
+        if self.concentration_mol_per_l <= 0:
+            raise SettingsError("[cell] concentration_mol_per_l must be > 0")
+        if self.solubility_mol_per_l is not None and self.solubility_mol_per_l <= 0:
+            raise SettingsError("[cell] solubility_mol_per_l must be > 0")
+        if self.counter_capacity_ah_per_l is not None and self.counter_capacity_ah_per_l <= 0:
+            raise SettingsError("[cell] counter_capacity_ah_per_l must be > 0")
+        if self.utilisation <= 0:
+            raise SettingsError("[cell] utilisation must be > 0 (a fraction up to 1)")
+
+
+# ---- plain formulas (scalars or arrays) -----------------------------------------
+def volumetric_capacity_ah_per_l(n_electrons: float | np.ndarray, concentration_mol_per_l: float | np.ndarray):
+    """Theoretical capacity of one electrolyte, Ah/L: n F c / 3600."""
+    return np.asarray(n_electrons, dtype=float) * AH_PER_MOL_ELECTRONS * np.asarray(concentration_mol_per_l, dtype=float)
+
+
+def gravimetric_capacity_mah_per_g(n_electrons: float | np.ndarray, molar_mass_g_per_mol: float | np.ndarray):
+    """Theoretical capacity of the salt, mAh/g: n F / (3.6 M), M including counterions."""
+    m = np.asarray(molar_mass_g_per_mol, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(m > 0, np.asarray(n_electrons, dtype=float) * AH_PER_MOL_ELECTRONS * 1000.0 / m, np.nan)
+
+
+def energy_density_wh_per_l(
+    voltage_v: float | np.ndarray,
+    capacity_ah_per_l: float | np.ndarray,
+    counter_capacity_ah_per_l: float | np.ndarray | None = None,
+    *,
+    tank_basis: str = "two-tank",
+    utilisation: float = 1.0,
+):
+    """Theoretical energy density, Wh/L of electrolyte.
+
+    two-tank: u V Qc Qp / (Qc + Qp), the counter tank sized to hold the same charge
+    (Qp = Qc when not given, giving u V Q / 2); one-tank: u V Qc.
+    """
+    if tank_basis not in TANK_BASES:
+        raise SettingsError(f"tank basis '{tank_basis}' is not allowed; allowed: {', '.join(TANK_BASES)}")
+    v = np.asarray(voltage_v, dtype=float)
+    qc = np.asarray(capacity_ah_per_l, dtype=float)
+    if tank_basis == "one-tank":
+        return utilisation * v * qc
+    qp = qc if counter_capacity_ah_per_l is None else np.asarray(counter_capacity_ah_per_l, dtype=float)
+    return utilisation * v * qc * qp / (qc + qp)
+
+
+def half_life_h(log10_k: float | np.ndarray, order: int, concentration_mol_per_l: float | np.ndarray = 1.0):
+    """Half-life, h, from log10 of a rate constant.
+
+    order 1: ln 2 / k, k in 1/h; order 2: 1 / (k c0), k in L/(mol h), c0 in mol/L.
+    """
+    k = np.power(10.0, np.asarray(log10_k, dtype=float))
+    if order == 1:
+        return math.log(2.0) / k
+    if order == 2:
+        return 1.0 / (k * np.asarray(concentration_mol_per_l, dtype=float))
+    raise SettingsError(f"rate order must be 1 or 2, got {order}")
+
+
+# ---- the table ----------------------------------------------------------------------
+def _numeric(table: pd.DataFrame, name: str) -> pd.Series:
+    if name not in table.columns:
+        return pd.Series(np.nan, index=table.index)
+    return pd.to_numeric(table[name], errors="coerce")
+
+
+def truthy(values: pd.Series) -> pd.Series:
+    """Flags given as booleans, 0/1 or words (true/yes/measured) -> bool."""
+    if values.dtype == bool:
+        return values
+    return values.map(lambda v: str(v).strip().lower() in TRUE_WORDS if pd.notna(v) else False).astype(bool)
+
+
+def _potentials(table: pd.DataFrame, settings: CellSettings, ref: str, notes: list[list[str]]):
+    """Potential used, its 95 % interval and basis per row."""
+    cal = _numeric(table, col.potential_calibrated(ref))
+    cal_lo = _numeric(table, col.potential_calibrated_pi_low(ref))
+    cal_hi = _numeric(table, col.potential_calibrated_pi_high(ref))
+    raw = _numeric(table, col.potential_uncalibrated(ref))
+    use_cal = cal.notna().to_numpy()
+    e = np.where(use_cal, cal, raw)
+    hw = settings.uncalibrated_uncertainty_v
+    has_pi = use_cal & cal_lo.notna().to_numpy() & cal_hi.notna().to_numpy()
+    lo = np.where(has_pi, np.minimum(cal_lo, e), e - hw)
+    hi = np.where(has_pi, np.maximum(cal_hi, e), e + hw)
+    basis = np.where(use_cal, "calibrated", np.where(np.isfinite(e), "uncalibrated", ""))
+    for r in np.flatnonzero(use_cal & ~has_pi):
+        notes[r].append(f"calibrated potential without interval: +-{hw} V used")
+    for r in np.flatnonzero(~np.isfinite(e)):
+        notes[r].append(
+            f"no potential (columns {col.potential_calibrated(ref)} / {col.potential_uncalibrated(ref)} empty)"
+        )
+    return e, lo, hi, basis
+
+
+def cell_metrics(
+    table: pd.DataFrame,
+    settings: CellSettings,
+    ref: str,
+    *,
+    default_role: str = "catholyte",
+    default_n_electrons: int = 1,
+) -> pd.DataFrame:
+    """Cell voltage, capacities, energy density and half-life for every candidate.
+
+    ``table`` has one row per candidate (columns from :mod:`redoxfront.columns`); ``ref``
+    is the campaign's reference electrode key (e.g. 'fc'). Returns a copy with the new
+    columns (units in their names) and a ``ranking_note`` per row; rows that lack a
+    value get NaN in the figures that need it and a note, never an exception.
+    """
+    if col.ID not in table.columns:
+        raise InputError(f"the table has no '{col.ID}' column; every candidate needs an id", field=col.ID)
+    out = table.copy().reset_index(drop=True)
+    n = len(out)
+    notes: list[list[str]] = [[] for _ in range(n)]
+    ids = out[col.ID].astype(str).to_numpy()
+
+    role = (out[col.ROLE] if col.ROLE in out.columns else pd.Series(default_role, index=out.index))
+    role = role.fillna(default_role).astype(str).str.strip().str.lower().to_numpy()
+    bad_role = ~np.isin(role, ["anolyte", "catholyte"])
+    for r in np.flatnonzero(bad_role):
+        notes[r].append(f"role '{role[r]}' is neither 'anolyte' nor 'catholyte'")
+
+    n_e = _numeric(out, col.N_ELECTRONS) if col.N_ELECTRONS in out.columns else pd.Series(float(default_n_electrons), index=out.index)
+    n_e = n_e.fillna(float(default_n_electrons)).to_numpy()
+    bad_n = ~((n_e > 0) & (np.round(n_e) == n_e))
+    for r in np.flatnonzero(bad_n):
+        notes[r].append(f"n_electrons {n_e[r]} is not a positive whole number")
+    n_e = np.where(bad_n, np.nan, n_e)
+
+    e, e_lo, e_hi, basis = _potentials(out, settings, ref, notes)
+    e, e_lo, e_hi = (np.where(bad_role, np.nan, a) for a in (e, e_lo, e_hi))
+
+    # concentration, capped by solubility
+    conc = np.full(n, settings.concentration_mol_per_l)
+    if settings.solubility_mol_per_l is not None:
+        conc = np.minimum(conc, settings.solubility_mol_per_l)
+    sol = _numeric(out, col.SOLUBILITY).to_numpy()
+    sol_ok = np.isfinite(sol) & (sol > 0)
+    conc = np.where(sol_ok, np.minimum(conc, np.where(sol_ok, sol, np.inf)), conc)
+    capped = conc < settings.concentration_mol_per_l
+    q_vol = volumetric_capacity_ah_per_l(n_e, conc)
+    mass = _numeric(out, col.MOLAR_MASS).to_numpy()
+    for r in np.flatnonzero(~(mass > 0)):
+        notes[r].append(f"no valid {col.MOLAR_MASS}: no mAh/g")
+    q_grav = gravimetric_capacity_mah_per_g(n_e, mass)
+
+    # counter electrolyte
+    sign = np.where(role == "anolyte", -1.0, 1.0)  # V = sign * (E - E_counter)
+    partner = np.full(n, "", dtype=object)
+    if settings.counter == "potential":
+        ec = float(settings.counter_potential_v)  # type: ignore[arg-type]
+        v = sign * (e - ec)
+        v_lo = np.where(sign > 0, e_lo - ec, ec - e_hi)
+        v_hi = np.where(sign > 0, e_hi - ec, ec - e_lo)
+        q_counter = None if settings.counter_capacity_ah_per_l is None else np.full(n, settings.counter_capacity_ah_per_l)
+        partner[:] = "fixed"
+    else:
+        v = np.full(n, np.nan)
+        v_lo = np.full(n, np.nan)
+        v_hi = np.full(n, np.nan)
+        q_counter = np.full(n, np.nan)
+        ok = np.isfinite(e) & np.isfinite(n_e)
+        for mine, theirs, pick in (("catholyte", "anolyte", np.argmin), ("anolyte", "catholyte", np.argmax)):
+            rows = np.flatnonzero((role == mine) & np.isfinite(e))
+            pool = np.flatnonzero((role == theirs) & ok)
+            if len(rows) == 0:
+                continue
+            if len(pool) == 0:
+                for r in rows:
+                    notes[r].append(
+                        f"no {theirs} among the candidates to pair with; set [cell] counter = 'potential' "
+                        "and counter_potential_v"
+                    )
+                continue
+            p = pool[pick(e[pool])]
+            s = 1.0 if mine == "catholyte" else -1.0
+            v[rows] = s * (e[rows] - e[p])
+            # independent errors of both electrodes, combined per side
+            if s > 0:
+                d_lo = np.hypot(e[rows] - e_lo[rows], e_hi[p] - e[p])
+                d_hi = np.hypot(e_hi[rows] - e[rows], e[p] - e_lo[p])
+            else:
+                d_lo = np.hypot(e_hi[rows] - e[rows], e[p] - e_lo[p])
+                d_hi = np.hypot(e[rows] - e_lo[rows], e_hi[p] - e[p])
+            v_lo[rows] = v[rows] - d_lo
+            v_hi[rows] = v[rows] + d_hi
+            partner[rows] = ids[p]
+            q_counter[rows] = q_vol[p]
+    for r in np.flatnonzero(np.isfinite(v) & (v <= 0)):
+        notes[r].append(f"cell voltage {v[r]:.3f} V is not positive")
+
+    kw = dict(tank_basis=settings.tank_basis, utilisation=settings.utilisation)
+    w = energy_density_wh_per_l(v, q_vol, q_counter, **kw)
+    w_lo = energy_density_wh_per_l(v_lo, q_vol, q_counter, **kw)
+    w_hi = energy_density_wh_per_l(v_hi, q_vol, q_counter, **kw)
+
+    # decomposition rate and half-life
+    rate_col = col.LOG10_K_PRED_FIRST if settings.rate_order == 1 else col.LOG10_K_PRED_SECOND
+    other_col = col.LOG10_K_PRED_SECOND if settings.rate_order == 1 else col.LOG10_K_PRED_FIRST
+    if rate_col not in out.columns and other_col in out.columns:
+        raise SettingsError(
+            f"[cell] rate_order = {settings.rate_order} but the predictions hold '{other_col}', not "
+            f"'{rate_col}'; set rate_order = {3 - settings.rate_order}"
+        )
+    logk = _numeric(out, rate_col).to_numpy()
+    logk_lo = _numeric(out, rate_col + col.PI_LOW_SUFFIX).to_numpy()
+    logk_hi = _numeric(out, rate_col + col.PI_HIGH_SUFFIX).to_numpy()
+    no_pi = np.isfinite(logk) & ~(np.isfinite(logk_lo) & np.isfinite(logk_hi))
+    for r in np.flatnonzero(~np.isfinite(logk)):
+        notes[r].append(f"no predicted rate ('{rate_col}'): no half-life")
+    for r in np.flatnonzero(no_pi):
+        notes[r].append("predicted rate without interval: half-life taken as exact")
+    logk_lo = np.where(no_pi, logk, np.minimum(logk_lo, logk))
+    logk_hi = np.where(no_pi, logk, np.maximum(logk_hi, logk))
+    t = half_life_h(logk, settings.rate_order, conc)
+    t_lo = half_life_h(logk_hi, settings.rate_order, conc)  # faster decay -> shorter life
+    t_hi = half_life_h(logk_lo, settings.rate_order, conc)
+
+    domain = out[col.DOMAIN].astype(str).str.lower() if col.DOMAIN in out.columns else pd.Series("", index=out.index)
+    status = (
+        out[col.CALIBRATION_STATUS].astype(str).str.lower()
+        if col.CALIBRATION_STATUS in out.columns else pd.Series("", index=out.index)
+    )
+    extrap = (domain == "extrapolating").to_numpy() | status.str.contains("outside").to_numpy()
+    measured = truthy(out[col.MEASURED]) if col.MEASURED in out.columns else pd.Series(False, index=out.index)
+
+    out[col.ROLE] = role
+    out[col.N_ELECTRONS] = n_e
+    out[col.POTENTIAL_BASIS] = basis
+    out[col.PARTNER_ID] = partner
+    out[col.CONCENTRATION] = conc
+    out[col.CONCENTRATION_CAPPED] = capped
+    out[col.CELL_VOLTAGE] = v
+    out[col.CELL_VOLTAGE_LOW] = v_lo
+    out[col.CELL_VOLTAGE_HIGH] = v_hi
+    out[col.CAPACITY_VOL] = q_vol
+    out[col.CAPACITY_GRAV] = q_grav
+    out[col.ENERGY_DENSITY] = w
+    out[col.ENERGY_DENSITY_LOW] = w_lo
+    out[col.ENERGY_DENSITY_HIGH] = w_hi
+    out[col.RATE_ORDER] = settings.rate_order
+    out[col.HALF_LIFE] = t
+    out[col.HALF_LIFE_LOW] = t_lo
+    out[col.HALF_LIFE_HIGH] = t_hi
+    out[col.EXTRAPOLATING] = extrap
+    out[col.MEASURED] = measured.to_numpy()
+    out[col.RANKING_NOTE] = ["; ".join(x) for x in notes]
+    return out
