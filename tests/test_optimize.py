@@ -92,3 +92,18 @@ def test_water_geometry_close_to_experiment():
     # GFN2-xTB reproduces it to about 0.02 A and 3 deg (Bannwarth et al., JCTC 2019, 15, 1652)
     assert r == pytest.approx(0.958, abs=0.03)
     assert angle == pytest.approx(104.5, abs=5.0)
+
+
+def test_rfo_level_shift_equals_lowest_eigenvalue_of_augmented_hessian():
+    from redoxfront.optimize import _rfo_shift
+
+    rng = np.random.default_rng(1)
+    for _ in range(10):
+        w = np.sort(rng.uniform(1e-3, 1.0, 30))
+        g = rng.normal(size=30) * rng.uniform(0.0, 1.0)
+        aug = np.zeros((31, 31))
+        aug[:-1, :-1] = np.diag(w)
+        aug[:-1, -1] = aug[-1, :-1] = g
+        # Banerjee et al., J. Phys. Chem. 1985, 89, 52: the RFO shift is the lowest eigenvalue
+        # of the augmented Hessian; numpy's eigvalsh (LAPACK) is the reference here
+        assert _rfo_shift(w, g) == pytest.approx(np.linalg.eigvalsh(aug)[0], abs=1e-10)

@@ -16,6 +16,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.optimize import brentq
 
 from redoxfront.campaign import OptimizerSettings
 from redoxfront.units import ANGSTROM_BOHR, BOHR_ANGSTROM
@@ -143,6 +144,25 @@ def _rigid_body_basis(x: np.ndarray) -> np.ndarray:
     return q[:, s > 1e-6 * s.max()]
 
 
+def _rfo_shift(w: np.ndarray, g: np.ndarray) -> float:
+    """Lowest eigenvalue of the RFO augmented Hessian [[diag(w), g], [g, 0]].
+
+    It is the root below min(w) of mu = sum_i g_i^2 / (mu - w_i), found by bracketing
+    (the function is monotonic there), which avoids a second diagonalisation.
+    """
+    g2 = g * g
+    lo_w = w.min()
+
+    def f(mu: float) -> float:
+        return mu - float((g2 / (mu - w)).sum())
+
+    upper = lo_w - 1e-12
+    if f(upper) <= 0:  # gradient has no weight on the lowest mode: shift at the pole
+        return float(upper)
+    span = float(np.sqrt(g2.sum())) + 1.0
+    return float(brentq(f, lo_w - span, upper, xtol=1e-14))
+
+
 @dataclass(frozen=True)
 class OptimizationResult:
     """Outcome of one optimisation. Positions Angstrom; energies Eh."""
@@ -190,11 +210,7 @@ def optimize_geometry(
         keep = np.argsort(np.abs(v.T @ rb).sum(1))[: n3 - rb.shape[1]]
         w, v = np.maximum(w[keep], 1e-3), v[:, keep]
         gq = v.T @ gp
-        # RFO: lowest eigenvalue of the augmented Hessian as level shift
-        aug = np.zeros((len(w) + 1, len(w) + 1))
-        aug[:-1, :-1] = np.diag(w)
-        aug[:-1, -1] = aug[-1, :-1] = gq
-        mu = np.linalg.eigvalsh(aug)[0]
+        mu = _rfo_shift(w, gq)
         dq = -gq / (w - mu)
         norm = np.linalg.norm(dq)
         if norm > trust:
