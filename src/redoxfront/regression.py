@@ -760,8 +760,10 @@ def fit_campaign(campaign: Any) -> FitReport:
     pred[columns.STANDARDISED_RESIDUAL] = pred[columns.ID].map(
         pd.Series(model.standardised_resid_, index=model.ids_)
     )
-    if columns.CALIBRATION_STATUS in table.columns:
-        pred[columns.CALIBRATION_STATUS] = table[columns.CALIBRATION_STATUS].to_numpy()
+    # every candidate's own columns (identity, potentials, descriptors, user columns) come
+    # along, so later steps read one table
+    carried = table.drop(columns=[c for c in pred.columns if c != columns.ID and c in table.columns])
+    pred = carried.merge(pred, on=columns.ID, how="left")
     out_dir = campaign.results_dir
     out_dir.mkdir(parents=True, exist_ok=True)
     pred_path = out_dir / "predictions.csv"
