@@ -53,7 +53,9 @@ class CellSettings:
         ``solubility_mol_per_l`` caps further).
     tank_basis : 'two-tank' (both electrolytes counted) or 'one-tank'.
     utilisation : usable fraction of the theoretical charge (state-of-charge window).
-    rate_order : 1 (k in 1/h) or 2 (k in L/(mol h)) for the decomposition rate.
+    rate_order : 1 (k in 1/h) or 2 (k in L/(mol h)) for the decomposition rate; unset =
+        the order the rate model used (column ``rate_order``), else whichever predicted
+        rate column the table holds.
     uncalibrated_uncertainty_v : half-width of the 95 % interval given to uncalibrated
         potentials, V (~0.3 V typical; Davis & Fry, J. Phys. Chem. A 2010, 114, 12299).
     """
@@ -65,7 +67,7 @@ class CellSettings:
     solubility_mol_per_l: float | None = field(default=None, metadata=bounded(0.0, None))
     tank_basis: str = field(default="two-tank", metadata=choice(*TANK_BASES))
     utilisation: float = field(default=1.0, metadata=bounded(0.0, 1.0))
-    rate_order: int = field(default=1, metadata=choice(1, 2))
+    rate_order: int | None = field(default=None, metadata=choice(1, 2))
     uncalibrated_uncertainty_v: float = field(default=0.3, metadata=bounded(0.0, 5.0))
 
     def __post_init__(self) -> None:
@@ -174,6 +176,24 @@ def _potentials(table: pd.DataFrame, settings: CellSettings, ref: str, notes: li
     return e, lo, hi, basis
 
 
+def resolve_rate_order(table: pd.DataFrame, setting: int | None) -> int:
+    """The decomposition-rate order to use: the setting, else the table's ``rate_order``
+    column (one value), else 2 if only second-order predictions exist, else 1."""
+    if setting is not None:
+        return int(setting)
+    if col.RATE_ORDER in table.columns:
+        values = set(pd.to_numeric(table[col.RATE_ORDER], errors="coerce").dropna().astype(int))
+        if len(values) > 1:
+            raise SettingsError(
+                f"the table mixes rate orders {sorted(values)}; set [cell] rate_order to 1 or 2"
+            )
+        if values and values <= {1, 2}:
+            return values.pop()
+    if col.LOG10_K_PRED_SECOND in table.columns and col.LOG10_K_PRED_FIRST not in table.columns:
+        return 2
+    return 1
+
+
 def cell_metrics(
     table: pd.DataFrame,
     settings: CellSettings,
@@ -277,12 +297,13 @@ def cell_metrics(
     w_hi = energy_density_wh_per_l(v_hi, q_vol, q_counter, **kw)
 
     # decomposition rate and half-life
-    rate_col = col.LOG10_K_PRED_FIRST if settings.rate_order == 1 else col.LOG10_K_PRED_SECOND
-    other_col = col.LOG10_K_PRED_SECOND if settings.rate_order == 1 else col.LOG10_K_PRED_FIRST
+    order = resolve_rate_order(out, settings.rate_order)
+    rate_col = col.LOG10_K_PRED_FIRST if order == 1 else col.LOG10_K_PRED_SECOND
+    other_col = col.LOG10_K_PRED_SECOND if order == 1 else col.LOG10_K_PRED_FIRST
     if rate_col not in out.columns and other_col in out.columns:
         raise SettingsError(
-            f"[cell] rate_order = {settings.rate_order} but the predictions hold '{other_col}', not "
-            f"'{rate_col}'; set rate_order = {3 - settings.rate_order}"
+            f"[cell] rate_order = {order} but the predictions hold '{other_col}', not "
+            f"'{rate_col}'; set rate_order = {3 - order}"
         )
     logk = _numeric(out, rate_col).to_numpy()
     logk_lo = _numeric(out, rate_col + col.PI_LOW_SUFFIX).to_numpy()
@@ -294,9 +315,9 @@ def cell_metrics(
         notes[r].append("predicted rate without interval: half-life taken as exact")
     logk_lo = np.where(no_pi, logk, np.minimum(logk_lo, logk))
     logk_hi = np.where(no_pi, logk, np.maximum(logk_hi, logk))
-    t = half_life_h(logk, settings.rate_order, conc)
-    t_lo = half_life_h(logk_hi, settings.rate_order, conc)  # faster decay -> shorter life
-    t_hi = half_life_h(logk_lo, settings.rate_order, conc)
+    t = half_life_h(logk, order, conc)
+    t_lo = half_life_h(logk_hi, order, conc)  # faster decay -> shorter life
+    t_hi = half_life_h(logk_lo, order, conc)
 
     domain = out[col.DOMAIN].astype(str).str.lower() if col.DOMAIN in out.columns else pd.Series("", index=out.index)
     status = (
@@ -320,7 +341,7 @@ def cell_metrics(
     out[col.ENERGY_DENSITY] = w
     out[col.ENERGY_DENSITY_LOW] = w_lo
     out[col.ENERGY_DENSITY_HIGH] = w_hi
-    out[col.RATE_ORDER] = settings.rate_order
+    out[col.RATE_ORDER] = order
     out[col.HALF_LIFE] = t
     out[col.HALF_LIFE_LOW] = t_lo
     out[col.HALF_LIFE_HIGH] = t_hi

@@ -795,7 +795,7 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
     import json
 
     from redoxfront.campaign import section_from_mapping
-    from redoxfront.cell import CellSettings, cell_metrics
+    from redoxfront.cell import CellSettings, cell_metrics, truthy
     from redoxfront.errors import InputError
 
     cell_settings = section_from_mapping(CellSettings, campaign.section("cell"), "cell")
@@ -807,18 +807,28 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
         table = pd.read_csv(src)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise InputError(f"cannot read the table: {exc}", source=str(src)) from exc
+    if col.ID not in table.columns:
+        raise InputError(f"no '{col.ID}' column", source=str(src), field=col.ID)
+    table[col.ID] = table[col.ID].astype(str)
+    desc_path = campaign.results_dir / "descriptors.csv"
+    if desc_path.exists():  # potentials, role, charge count, molar mass live there
+        desc = pd.read_csv(desc_path)
+        if col.ID in desc.columns:
+            desc[col.ID] = desc[col.ID].astype(str)
+            extra = [c for c in desc.columns if c not in table.columns]
+            if extra:
+                table = table.merge(desc[[col.ID, *extra]].drop_duplicates(col.ID), on=col.ID, how="left")
+    flag = truthy(table[col.MEASURED]) if col.MEASURED in table.columns else pd.Series(False, index=table.index)
+    for target in (col.LOG10_K_FIRST, col.LOG10_K_SECOND):  # measured rates the model step carried
+        if target in table.columns:
+            flag |= pd.to_numeric(table[target], errors="coerce").notna()
     if campaign.inputs.measured_rates:
         rates_path = campaign.path(campaign.inputs.measured_rates)
         if rates_path.exists():
             rates = pd.read_csv(rates_path)
             if col.ID in rates.columns:
-                done = set(rates[col.ID].astype(str))
-                flag = table[col.ID].astype(str).isin(done)
-                if col.MEASURED in table.columns:
-                    from redoxfront.cell import truthy
-
-                    flag = flag | truthy(table[col.MEASURED])
-                table[col.MEASURED] = flag
+                flag |= table[col.ID].isin(set(rates[col.ID].astype(str)))
+    table[col.MEASURED] = flag.to_numpy(bool)
     metrics = cell_metrics(
         table, cell_settings, campaign.compute.reference,
         default_role=campaign.compute.role, default_n_electrons=campaign.compute.n_electrons,
