@@ -154,3 +154,33 @@ def choose_training_command(campaign: Path, k: int, made: tuple[str, ...], skip:
     if design.skipped_rows:
         click.echo(f"left out (failed or missing descriptors): {', '.join(design.skipped_rows)}", err=True)
     click.echo(f"spanned {len(design.columns)} descriptor columns; written to results/training_picks.csv")
+
+
+# ---- cell metrics, trade-off front, next experiments --------------------------
+
+
+@main.command("rank")
+@CAMPAIGN_ARG
+@click.option("--quiet", is_flag=True, help="No progress bar.")
+@friendly_errors
+def rank_command(campaign: Path, quiet: bool) -> None:
+    """Cell metrics, trade-off front, probability on the front and next experiments."""
+    from redoxfront import columns
+    from redoxfront.campaign import load_campaign
+    from redoxfront.pareto import rank_campaign
+
+    table = rank_campaign(load_campaign(campaign), progress=not quiet)
+    ranked = table[columns.PARETO_RANK].notna()
+    first = table[table[columns.PARETO_RANK] == 1]
+    click.echo(f"{int(ranked.sum())} of {len(table)} candidates ranked; {len(first)} on the first front")
+    knee = table.loc[table[columns.KNEE], columns.ID].tolist()
+    if knee:
+        click.echo(f"knee: {knee[0]}")
+    picks = table[table[columns.PICK_ORDER].notna()].sort_values(columns.PICK_ORDER)
+    for _, row in picks.iterrows():
+        flag = "  (extrapolating)" if row[columns.EXTRAPOLATING] else ""
+        click.echo(f"pick {int(row[columns.PICK_ORDER])}: {row[columns.ID]}  "
+                   f"P(front) {row[columns.P_FRONT]:.2f}{flag}")
+    if (table[columns.POTENTIAL_BASIS] == "uncalibrated").any():
+        click.echo("note: some potentials are uncalibrated (+-[cell] uncalibrated_uncertainty_v)", err=True)
+    click.echo("written: results/ranking.csv, results/picks.csv, results/figures/front.png")
