@@ -305,3 +305,19 @@ def test_rank_command(tmp_path):
     result = CliRunner().invoke(main, ["rank", str(bad)])
     assert result.exit_code == 2
     assert "needs counter_potential_v" in result.output
+
+
+@pytest.mark.parametrize("m", [2, 3])
+def test_dominated_by_any_and_large_fronts_with_ties(m):
+    rng = np.random.default_rng(31 + m)
+    targets = rng.integers(0, 12, size=(400, m)).astype(float)
+    doms = rng.integers(0, 12, size=(300, m)).astype(float)
+    brute = P.dominates(doms[None, :, :], targets[:, None, :]).any(axis=1)
+    np.testing.assert_array_equal(P._dominated_by_any(targets, doms), brute)
+    np.testing.assert_array_equal(P._dominated_by_any(targets, targets),
+                                  ~paretoset.paretoset(targets, sense=["max"] * m, distinct=False, use_numba=False))
+    # a large, anti-correlated set (most points on the front) through the sweep paths
+    x = rng.random((3000, m - 1)).round(3)
+    big = np.c_[x, 1.0 - x.sum(axis=1)]
+    ref = paretoset.paretoset(big, sense=["max"] * m, distinct=False, use_numba=False)
+    np.testing.assert_array_equal(P.first_front_mask(big), ref)

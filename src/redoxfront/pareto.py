@@ -32,6 +32,7 @@ from typing import TYPE_CHECKING, Sequence
 
 import numpy as np
 import pandas as pd
+from scipy.spatial import cKDTree
 from scipy.special import ndtr, ndtri
 from scipy.stats import qmc
 from tqdm.auto import tqdm
@@ -93,6 +94,16 @@ def _dominated_by_any(targets: np.ndarray, dominators: np.ndarray,
     f = len(dominators)
     if f == 0 or n == 0:
         return out
+    if m == 2 and f > 64:
+        # sorted sweep: some j has x0 >= t0 and x1 > t1, or x0 > t0 and x1 >= t1
+        o = np.argsort(-dominators[:, 0], kind="stable")
+        neg_x0 = -dominators[o, 0]
+        best1 = np.maximum.accumulate(dominators[o, 1])
+        n_ge = np.searchsorted(neg_x0, -targets[:, 0], side="right")
+        n_gt = np.searchsorted(neg_x0, -targets[:, 0], side="left")
+        top_ge = np.where(n_ge > 0, best1[np.maximum(n_ge - 1, 0)], -np.inf)
+        top_gt = np.where(n_gt > 0, best1[np.maximum(n_gt - 1, 0)], -np.inf)
+        return (top_ge > targets[:, 1]) | (top_gt >= targets[:, 1])
     step = max(1, budget // f)
     cols = [np.ascontiguousarray(dominators[:, c])[None, :] for c in range(m)]
     for s in range(0, n, step):
@@ -177,6 +188,18 @@ def first_front_mask(objectives: np.ndarray, block: int = 1024) -> np.ndarray:
     """
     p = _matrix(objectives)
     n = len(p)
+    if p.shape[1] == 2 and n > 64:
+        # two objectives: after a descending sort a distinct point is on the front iff its
+        # second objective beats every earlier one
+        uniq, inverse = np.unique(p, axis=0, return_inverse=True)
+        o = _lexsort_desc(uniq)
+        y = uniq[o, 1]
+        best_before = np.r_[-np.inf, np.maximum.accumulate(y)[:-1]]
+        on = np.zeros(len(uniq), dtype=bool)
+        on[o] = y > best_before
+        return on[inverse.reshape(-1)]
+    if p.shape[1] == 3 and n > 2000:
+        return non_dominated_ranks(p) == 1  # sweep: no quadratic blow-up on large fronts
     order = _lexsort_desc(p)
     q = p[order]
     front_idx: list[np.ndarray] = []
@@ -435,34 +458,33 @@ def _certainly_dominated(lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
     return _dominated_by_any(upper, front)
 
 
-def _likely_dominators(unc: Uncertain, pool: np.ndarray, k: int) -> np.ndarray:
-    """For every row, the ``k`` rows of ``pool`` most likely to dominate it, by the
-    standardised shortfall of j's mean behind i's (a normal-tail proxy of P(j dom i)). A row may get itself as a filler (harmless: a
-    point never dominates itself)."""
+def _likely_dominators(unc: Uncertain, pool: np.ndarray, k: int, neighbours: int = 24) -> np.ndarray:
+    """For every row, ``k`` rows of ``pool`` likely to dominate it.
+
+    Objectives are scaled by their typical standard deviation; the ``neighbours`` pool
+    points nearest to a point one scale unit above the row (a k-d tree query) are
+    scored by the standardised shortfall of their means behind the row's (a normal-tail
+    proxy of -log P(j dominates i)) and the best ``k`` kept. A row may get itself as a
+    filler, which is harmless: a point never dominates itself.
+    """
     n, m = unc.mean.shape
     sd = 0.5 * (unc.sd_low + unc.sd_high)
-    k = max(1, min(k, len(pool)))
-    out = np.empty((n, k), dtype=np.int64)
-    step = max(1, DEFAULT_ELEMENT_BUDGET // (len(pool) * m * 8))
-    mu_p, sd_p = unc.mean[pool], sd[pool]
-    for s in range(0, n, step):
-        rows = np.arange(s, min(n, s + step))
-        diff = mu_p[None, :, :] - unc.mean[rows][:, None, :]
-        scale = np.sqrt(sd_p[None, :, :] ** 2 + sd[rows][:, None, :] ** 2)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            z = np.where(scale > 0, diff / np.where(scale > 0, scale, 1.0),
-                         np.where(diff >= 0, np.inf, -np.inf))
-        # -log P(j dominates i) grows like z^2 / 2 over the objectives where j is worse
-        score = -np.square(np.minimum(z, 0.0)).sum(axis=2)
-        score[pool[None, :] == rows[:, None]] = -np.inf
-        if k < len(pool):
-            best = np.argpartition(-score, k - 1, axis=1)[:, :k]
-        else:
-            best = np.broadcast_to(np.arange(len(pool)), (len(rows), len(pool))).copy()
-        picked = np.take_along_axis(score, best, axis=1)
-        best = np.take_along_axis(best, np.argsort(-picked, axis=1, kind="stable"), axis=1)
-        out[rows] = pool[best]
-    return out
+    span = unc.mean.max(axis=0) - unc.mean.min(axis=0)
+    scale = np.median(sd, axis=0)
+    scale = np.where(scale > 0, scale, np.where(span > 0, span / 100.0, 1.0))
+    z = unc.mean / scale
+    nn = int(min(neighbours, len(pool)))
+    k = max(1, min(k, nn))
+    _, near = cKDTree(z[pool]).query(z + 1.0, k=nn)
+    near = pool[np.asarray(near).reshape(n, nn)]
+    diff = unc.mean[near] - unc.mean[:, None, :]
+    both = np.sqrt(sd[near] ** 2 + sd[:, None, :] ** 2)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        zz = np.where(both > 0, diff / np.where(both > 0, both, 1.0), np.where(diff >= 0, np.inf, -np.inf))
+    score = -np.square(np.minimum(zz, 0.0)).sum(axis=2)
+    score[near == np.arange(n)[:, None]] = -np.inf
+    best = np.argsort(-score, axis=1, kind="stable")[:, :k]
+    return np.take_along_axis(near, best, axis=1)
 
 
 def _front_counts(sub: Uncertain, n_draws: int, rng: np.random.Generator, element_budget: int,
@@ -510,7 +532,7 @@ def _front_counts(sub: Uncertain, n_draws: int, rng: np.random.Generator, elemen
         for row in range(b):
             idx = i[bounds[row]:bounds[row + 1]]
             pts = x[:, row, idx].T
-            on = ~_dominated_by_any(pts, pts)
+            on = ~_dominated_by_any(pts, pts) if len(idx) <= 1500 else first_front_mask(pts)
             counts[idx[on]] += 1
         done += b
         bar.update(b)
