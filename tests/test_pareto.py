@@ -321,3 +321,15 @@ def test_dominated_by_any_and_large_fronts_with_ties(m):
     big = np.c_[x, 1.0 - x.sum(axis=1)]
     ref = paretoset.paretoset(big, sense=["max"] * m, distinct=False, use_numba=False)
     np.testing.assert_array_equal(P.first_front_mask(big), ref)
+
+
+def test_suggestion_gains_match_hand_computed_volumes():
+    # exact points (no uncertainty): box from 10 % below the worst to the best value;
+    # (1, 2) alone covers 0.1 x 1.1 of the 1.1 x 1.1 box, then (2, 1) adds 0.1 x 1.0 (from memory:
+    # box areas by hand)
+    m = np.array([[1.0, 2.0], [2.0, 1.0]])
+    picks, gains = P.suggest_experiments(m, m, m, np.array([False, False]), 3, seed=0)
+    assert list(picks) == [0, 1]
+    assert gains[0] == pytest.approx(0.11 / 1.21, abs=2e-3)
+    assert gains[1] == pytest.approx(0.10 / 1.21, abs=2e-3)
+    assert sum(gains) == pytest.approx(P.hypervolume(m, [0.9, 0.9]) / 1.21, abs=3e-3)

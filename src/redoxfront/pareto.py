@@ -202,7 +202,6 @@ def first_front_mask(objectives: np.ndarray, block: int = 1024) -> np.ndarray:
         return non_dominated_ranks(p) == 1  # sweep: no quadratic blow-up on large fronts
     order = _lexsort_desc(p)
     q = p[order]
-    front_idx: list[np.ndarray] = []
     front_pts = np.empty((0, p.shape[1]))
     keep = np.zeros(n, dtype=bool)
     for start in range(0, n, block):
@@ -215,7 +214,6 @@ def first_front_mask(objectives: np.ndarray, block: int = 1024) -> np.ndarray:
             sub = blk[cand]
             cand = cand[~_dominated_by_any(sub, sub)]
         keep[order[start + cand]] = True
-        front_idx.append(start + cand)
         front_pts = np.vstack([front_pts, blk[cand]])
     return keep
 
@@ -583,6 +581,21 @@ def front_probability(
 # ---------------------------------------------------------------------------------
 # next experiments
 # ---------------------------------------------------------------------------------
+BOX_MARGIN: float = 0.1
+"""The objective box starts this fraction of its width below the worst possible draw,
+so that the worst candidates still add volume (common practice, no source)."""
+
+
+def objective_box(unc: Uncertain) -> tuple[np.ndarray, np.ndarray]:
+    """Lower corner and widths of the box used for hypervolumes: from ``BOX_MARGIN`` of
+    the width below the worst possible draw to the best possible draw, per objective."""
+    lo = unc.lower.min(axis=0)
+    hi = unc.upper.max(axis=0)
+    width = np.where(hi > lo, hi - lo, 1.0)
+    lo = lo - BOX_MARGIN * width
+    return lo, width * (1.0 + BOX_MARGIN)
+
+
 def suggest_experiments(
     mean: np.ndarray,
     low: np.ndarray,
@@ -598,8 +611,8 @@ def suggest_experiments(
     """Pick ``k`` unmeasured candidates that most raise the expected hypervolume.
 
     Objectives maximised, ``[low, high]`` 95 % intervals as in :func:`front_probability`.
-    The gain of a batch is the expected volume, within the box from the worst to the best
-    possible draw (each objective scaled to [0, 1]), that the batch dominates and the
+    The gain of a batch is the expected volume, within the box of :func:`objective_box`
+    (each objective scaled to [0, 1]), that the batch dominates and the
     measured candidates' means do not (expected hypervolume improvement, Emmerich et al.,
     IEEE TEC 2006, 10, 421). It is integrated over a seeded scrambled Sobol sample of the
     box with exact per-point probabilities (independent objectives), and the batch is built
@@ -617,9 +630,7 @@ def suggest_experiments(
         raise DataError(f"measured flags: {measured.size} values for {n} candidates")
     if k < 1 or n == 0:
         return np.zeros(0, dtype=np.int64), np.zeros(0)
-    lo_box = unc.lower.min(axis=0)
-    hi_box = unc.upper.max(axis=0)
-    span = np.where(hi_box > lo_box, hi_box - lo_box, 1.0)
+    lo_box, span = objective_box(unc)
     free = np.flatnonzero(~measured)
     if len(free) == 0:
         return np.zeros(0, dtype=np.int64), np.zeros(0)
@@ -739,8 +750,8 @@ class RankingResult:
     table: pd.DataFrame
     picks: pd.DataFrame
     hypervolume_fraction: float
-    """Hypervolume of the first front of the means, as a fraction of the box from the
-    worst to the best possible draw (objectives scaled to [0, 1], half-life as log10)."""
+    """Hypervolume of the first front of the means, as a fraction of the box of
+    :func:`objective_box` (objectives scaled to [0, 1], half-life as log10)."""
     knee_id: str | None
     objectives: tuple[str, ...]
 
@@ -780,9 +791,7 @@ def rank_table(table: pd.DataFrame, settings: RankingSettings, *, progress: bool
         knee_id = str(out[col.ID].iloc[rows[kn]])
         p = front_probability(mu, lo, hi, settings.n_draws, settings.seed, progress=progress)
         p_front[rows] = p
-        unc = Uncertain.from_interval(mu, lo, hi)
-        box_lo, box_hi = unc.lower.min(axis=0), unc.upper.max(axis=0)
-        span = np.where(box_hi > box_lo, box_hi - box_lo, 1.0)
+        box_lo, span = objective_box(Uncertain.from_interval(mu, lo, hi))
         hv_fraction = hypervolume((mu[first] - box_lo) / span, np.zeros(len(names)))
         measured = out[col.MEASURED].to_numpy(bool)[rows] if col.MEASURED in out else np.zeros(len(rows), bool)
         if settings.n_suggestions > 0:
