@@ -184,3 +184,17 @@ def rank_command(campaign: Path, quiet: bool) -> None:
     if (table[columns.POTENTIAL_BASIS] == "uncalibrated").any():
         click.echo("note: some potentials are uncalibrated (+-[cell] uncalibrated_uncertainty_v)", err=True)
     click.echo("written: results/ranking.csv, results/picks.csv, results/figures/front.png")
+
+
+@main.command("run")
+@CAMPAIGN_ARG
+@click.option("--workers", type=int, default=None, help="Parallel workers for the compute step.")
+@click.option("--cluster", default=None, metavar="ADDRESS",
+              help="Compute on a Dask scheduler at ADDRESS, or 'local' for a Dask cluster on this machine.")
+@click.option("--quiet", is_flag=True, help="No progress bars.")
+@friendly_errors
+def run_command(campaign: Path, workers: int | None, cluster: str | None, quiet: bool) -> None:
+    """The whole job: compute, fade fitting, calibration, rate model and ranking."""
+    from redoxfront.pipeline import run_campaign
+
+    run_campaign(campaign, workers=workers, dask_address=cluster, progress=not quiet, echo=click.echo)

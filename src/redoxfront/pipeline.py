@@ -1,0 +1,80 @@
+"""The whole job on one campaign, step by step: what ``redoxfront run`` does.
+
+compute -> fade fitting (if cycling files are given) -> calibration -> rate model
+(if rates are available) -> cell metrics and ranking. Each step is the library
+function its own command calls; a step without its inputs is skipped with the reason.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
+
+from redoxfront.campaign import Campaign, load_campaign
+
+
+@dataclass
+class RunSummary:
+    """One line per step: what it did or why it was skipped."""
+
+    lines: list[str] = field(default_factory=list)
+
+    def add(self, step: str, text: str) -> None:
+        self.lines.append(f"{step:10s} {text}")
+
+
+def run_campaign(
+    path: str | Path,
+    *,
+    workers: int | None = None,
+    dask_address: str | None = None,
+    progress: bool = True,
+    echo: Callable[[str], None] = print,
+) -> RunSummary:
+    """Run every step that has its inputs; return a summary (also echoed as it goes)."""
+    from redoxfront.calibration import calibrate_campaign
+    from redoxfront.compute import compute_campaign
+    from redoxfront.fade import fade_campaign
+    from redoxfront.pareto import rank_campaign
+    from redoxfront.regression import fit_campaign
+
+    camp: Campaign = load_campaign(path)
+    summary = RunSummary()
+
+    def note(step: str, text: str) -> None:
+        summary.add(step, text)
+        echo(summary.lines[-1])
+
+    report = compute_campaign(camp, workers=workers, dask_address=dask_address, progress=progress)
+    ok = int((report.table["status"] == "ok").sum()) if len(report.table) else 0
+    note("compute", f"{ok} of {len(report.table)} candidates computed, {len(report.problems)} input rows "
+                    f"rejected (results/input_problems.csv); {report.new_engine_calls} new engine calls, "
+                    f"{report.wall_time_s:.0f} s")
+    for p in report.problems:
+        echo(f"           rejected: {p}")
+
+    if camp.inputs.cycling:
+        rates = fade_campaign(camp.folder, progress=progress)
+        fitted = int((rates["status"] == "ok").sum()) if "status" in rates else len(rates)
+        note("fade", f"{fitted} of {len(rates)} datasets fitted (results/rates.csv, results/fade_report.md)")
+    else:
+        note("fade", "skipped: no [inputs] cycling files")
+
+    table = calibrate_campaign(camp)
+    cal = table.attrs.get("calibration")
+    note("calibrate", "calibrated against measured potentials (results/calibration.json)" if cal
+         else "skipped: no [inputs] measured_potentials; potentials stay uncalibrated")
+
+    rates_given = camp.inputs.measured_rates or (camp.results_dir / "rates.csv").exists()
+    if not rates_given:
+        note("fit", "skipped: no measured rates and no fitted fade rates")
+        return summary
+    fit = fit_campaign(camp)
+    note("fit", f"model on {', '.join(fit.terms)}: "
+                f"R2 {(fit.statistics.get('r2') or float('nan')):.3f}, Q2(LOO) {(fit.statistics.get('q2_loo') or float('nan')):.3f} "
+                "(results/model.json, results/predictions.csv)")
+
+    ranked = rank_campaign(camp, progress=progress)
+    note("rank", f"{len(ranked)} candidates ranked (results/ranking.csv, results/picks.csv, results/figures/)")
+    return summary
