@@ -19,6 +19,7 @@ import tracemalloc
 import numpy as np
 
 from redoxfront import pareto as P
+from redoxfront import pareto_uncertainty as U
 
 
 def invented_candidates(n: int, seed: int = 1):
@@ -62,10 +63,10 @@ def main() -> None:
     t0 = time.perf_counter()
     t_rank, ranks = timed(P.non_dominated_ranks, mean)
     t_crowd, _ = timed(P.crowding_distance, mean, ranks)
-    t_prob, prob = timed(P.front_probability, mean, low, high, args.draws, 7)
+    t_prob, prob = timed(U.front_probability, mean, low, high, args.draws, 7)
     first = ranks == 1
     t_hv, hv = timed(P.hypervolume, mean[first], mean.min(axis=0))
-    t_pick, (picks, gains) = timed(P.suggest_experiments, mean, low, high, np.zeros(args.n, bool), 5, 7,
+    t_pick, (picks, gains) = timed(U.suggest_experiments, mean, low, high, np.zeros(args.n, bool), 5, 7,
                                    priority=prob)
     total = time.perf_counter() - t0
     _, peak = tracemalloc.get_traced_memory()
@@ -118,8 +119,8 @@ def main() -> None:
     # Monte Carlo: our pruned cascade vs full pairwise tests in every draw
     idx = rng.choice(args.n, 2000, replace=False)
     n_d = 100
-    t_mc, _ = timed(P.front_probability, mean[idx], low[idx], high[idx], n_d, 1)
-    unc = P.Uncertain.from_interval(mean[idx], low[idx], high[idx])
+    t_mc, _ = timed(U.front_probability, mean[idx], low[idx], high[idx], n_d, 1)
+    unc = U.Uncertain.from_interval(mean[idx], low[idx], high[idx])
     t_b = time.perf_counter()
     x = np.moveaxis(unc.draw(np.random.default_rng(1), n_d), 0, 2)
     for d in range(n_d):

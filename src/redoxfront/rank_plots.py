@@ -1,6 +1,6 @@
 """Figures of the ranking: the trade-off front and a pairwise view of the objectives.
 
-Both take the ranked table of :func:`redoxfront.pareto.rank_table` and write a PNG
+Both take the ranked table of :func:`redoxfront.ranking.rank_table` and write a PNG
 (matplotlib, Agg backend). Half-life axes are logarithmic; 95 % intervals are error
 bars; candidates whose rate prediction extrapolates (or whose potential lies outside the
 calibration range) are drawn as open diamonds instead of filled circles.
@@ -20,7 +20,8 @@ import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
 from redoxfront import columns as col  # noqa: E402
-from redoxfront.pareto import OBJECTIVES, first_front_mask  # noqa: E402
+from redoxfront.pareto import first_front_mask  # noqa: E402
+from redoxfront.ranking import OBJECTIVES  # noqa: E402
 
 INK = "#1f2933"
 MUTED = "#b8c2cc"
