@@ -167,7 +167,7 @@ def rank_command(campaign: Path, quiet: bool) -> None:
     """Cell metrics, trade-off front, probability on the front and next experiments."""
     from redoxfront import columns
     from redoxfront.campaign import load_campaign
-    from redoxfront.pareto import rank_campaign
+    from redoxfront.ranking import rank_campaign
 
     table = rank_campaign(load_campaign(campaign), progress=not quiet)
     ranked = table[columns.PARETO_RANK].notna()
