@@ -209,6 +209,9 @@ def optimize_geometry(
         # drop the rigid-body modes, keep a floor on the curvature of the rest
         keep = np.argsort(np.abs(v.T @ rb).sum(1))[: n3 - rb.shape[1]]
         w, v = np.maximum(w[keep], 1e-3), v[:, keep]
+        if w.size == 0:  # a single atom has nothing to optimise
+            converged = True
+            break
         gq = v.T @ gp
         mu = _rfo_shift(w, gq)
         dq = -gq / (w - mu)
