@@ -335,3 +335,18 @@ def test_suggestion_gains_match_hand_computed_volumes():
     assert gains[0] == pytest.approx(0.11 / 1.21, abs=2e-3)
     assert gains[1] == pytest.approx(0.10 / 1.21, abs=2e-3)
     assert sum(gains) == pytest.approx(P.hypervolume(m, [0.9, 0.9]) / 1.21, abs=3e-3)
+
+
+def test_knee_label_offset_stays_inside_the_axes():
+    import matplotlib.pyplot as plt
+
+    from redoxfront.rank_plots import _label_offset
+
+    fig, ax = plt.subplots()
+    ax.plot([0.0, 10.0], [0.0, 10.0])
+    ax.set_xlim(0, 10)
+    ax.set_ylim(0, 10)
+    # common practice, no source: label on the side facing the middle of the axes
+    assert _label_offset(ax, 9.5, 5.0) == (-14, 18, "right", "bottom")
+    assert _label_offset(ax, 1.0, 9.5) == (12, -18, "left", "top")
+    plt.close(fig)

@@ -78,6 +78,16 @@ def _scatter(ax, sub: pd.DataFrame, xcol: str, ycol: str, colour, **kw) -> None:
         ax.scatter(x[extrap], y[extrap], facecolors="none", edgecolors=ACCENT, marker="D", **{**kw2, "s": kw2.get("s", 10) * 1.6})
 
 
+def _label_offset(ax: plt.Axes, x: float, y: float) -> tuple[int, int, str, str]:
+    """Offset (points) and alignment that keep a label beside (x, y) inside the axes:
+    to the left of a point in the right half, below a point near the top."""
+    ax.autoscale_view()
+    fx, fy = ax.transAxes.inverted().transform(ax.transData.transform((x, y)))
+    dx, ha = (-14, "right") if fx > 0.5 else (12, "left")
+    dy, va = (-18, "top") if fy > 0.85 else (18, "bottom")
+    return dx, dy, ha, va
+
+
 def plot_front(table: pd.DataFrame, objectives: Sequence[str], path: str | Path) -> Path:
     """Front figure: voltage or energy density against half-life (log scale).
 
@@ -113,8 +123,9 @@ def plot_front(table: pd.DataFrame, objectives: Sequence[str], path: str | Path)
         ax.step(fx, fy, where="pre", color=INK, linewidth=1.0, zorder=2, label=name)
         knee = data[data[col.KNEE]]
         for _, row in knee.iterrows():
-            ax.annotate(f"knee: {row[col.ID]}", (row[xcol], row[ycol]), xytext=(12, 14),
-                        textcoords="offset points", fontsize=8, color=INK,
+            dx, dy, ha, va = _label_offset(ax, row[xcol], row[ycol])
+            ax.annotate(f"knee: {row[col.ID]}", (row[xcol], row[ycol]), xytext=(dx, dy),
+                        textcoords="offset points", fontsize=8, color=INK, ha=ha, va=va,
                         arrowprops=dict(arrowstyle="-", color=INK, linewidth=0.6))
         for _, row in data[data[col.PICK_ORDER].notna()].iterrows():
             ax.annotate(str(int(row[col.PICK_ORDER])), (row[xcol], row[ycol]), xytext=(-8, 5),
