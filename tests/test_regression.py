@@ -16,7 +16,8 @@ from statsmodels.stats.outliers_influence import variance_inflation_factor
 from redoxfront import columns
 from redoxfront.campaign import load_campaign
 from redoxfront.errors import DataError, SettingsError
-from redoxfront.regression import OLSModel, fit_campaign, load_model
+from redoxfront.model_step import fit_campaign
+from redoxfront.regression import OLSModel, load_model
 
 
 # ---------------------------------------------------------------- NIST Longley

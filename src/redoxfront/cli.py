@@ -127,7 +127,7 @@ def calibrate_command(campaign: Path) -> None:
 def fit_command(campaign: Path) -> None:
     """Fit the decomposition-rate model, validate it and predict every candidate."""
     from redoxfront.campaign import load_campaign
-    from redoxfront.regression import fit_campaign
+    from redoxfront.model_step import fit_campaign
 
     click.echo(fit_campaign(load_campaign(campaign)).text())
 

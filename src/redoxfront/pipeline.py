@@ -36,8 +36,8 @@ def run_campaign(
     from redoxfront.calibration import calibrate_campaign
     from redoxfront.compute import compute_campaign
     from redoxfront.fade import fade_campaign
+    from redoxfront.model_step import fit_campaign
     from redoxfront.ranking import rank_campaign
-    from redoxfront.regression import fit_campaign
 
     camp: Campaign = load_campaign(path)
     summary = RunSummary()
