@@ -6,10 +6,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from redoxfront.cycling import (
+from redoxfront.columns import (
     CHARGE_CAPACITY, CYCLE, DISCHARGE_CAPACITY, NOTE, RETENTION, SIGNAL, TIME_H, USED,
-    flag_spikes, load_series, role_of, split_header,
 )
+from redoxfront.cycling import load_series, role_of, split_header
+from redoxfront.cycling_hygiene import flag_spikes
 from redoxfront.errors import InputError
 
 

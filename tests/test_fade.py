@@ -14,10 +14,11 @@ from click.testing import CliRunner
 from redoxfront import columns
 from redoxfront.cli import main
 from redoxfront.errors import DataError, SettingsError
+from redoxfront.columns import RATE_TABLE_COLUMNS
 from redoxfront.fade import (
-    MODELS, RATE_TABLE_COLUMNS, FadeModel, FadeSettings, aicc, choose_model, fade_settings,
-    first_order_k_from_retention, fit_fade_file, fit_fade_folder, retention_percent_per_day,
+    MODELS, FadeModel, aicc, choose_model, first_order_k_from_retention, retention_percent_per_day,
 )
+from redoxfront.fade_step import FadeSettings, fade_settings, fit_fade_file, fit_fade_folder
 
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples" / "dimethoxybenzene-catholytes"
 

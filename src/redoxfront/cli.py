@@ -86,9 +86,11 @@ def compute_command(campaign: Path, candidates: Path | None, out: Path | None, w
 @friendly_errors
 def fade_command(campaign: Path, input_path: Path | None, out: Path | None, quiet: bool) -> None:
     """Fit capacity fade / decay kinetics and write the rate table (rates.csv)."""
-    from redoxfront.fade import fade_campaign
+    from redoxfront.campaign import load_campaign
+    from redoxfront.fade_step import fade_campaign
 
-    rates = fade_campaign(campaign, input_path=input_path, out_dir=out, progress=not quiet)
+    rates = fade_campaign(load_campaign(campaign), input_path=input_path, out_dir=out,
+                          progress=not quiet)
     ok = rates["status"] == "ok"
     click.echo(f"{int(ok.sum())} datasets fitted, {int((~ok).sum())} failed; see fade_report.md")
     for _, r in rates[~ok].iterrows():

@@ -127,3 +127,59 @@ def descriptor_column(
 def conformers_used_column(state: str) -> str:
     """Number of conformers of ``state`` within the descriptor energy window."""
     return f"n_conformers_used_{state}"
+
+
+# ---- fade step: per-cycle table (results/fade_cycles.csv, redoxfront.cycling) ----
+CYCLE = "cycle"
+"""Cycle number as counted by the cycler (renumbered to keep increasing after a restart)."""
+TIME_H = "time_h"
+"""Time of the point or end of the cycle, h (from the first row of the file)."""
+CHARGE_CAPACITY = "charge_capacity_mah"
+DISCHARGE_CAPACITY = "discharge_capacity_mah"
+COULOMBIC_EFFICIENCY = "coulombic_efficiency_percent"
+RETENTION = "capacity_retention_percent"
+"""Signal as a percentage of the first point used."""
+SIGNAL = "signal"
+"""The quantity that is fitted: capacity on the chosen basis (mAh) or the decay signal."""
+USED = "used"
+"""False for points set aside by the clean-up rules (reason in :data:`NOTE`)."""
+NOTE = "note"
+
+# ---- fade step: rate table (results/rates.csv, redoxfront.fade_step) ---------------
+K_FIRST = "k_per_h"
+"""Decomposition rate constant of the charged species, first order, 1/h."""
+K_SECOND = "k_l_per_mol_per_h"
+"""Second-order decomposition rate constant, L/(mol h) (needs c0)."""
+K_FADE = "k_fade_per_h"
+"""Fitted capacity-fade constant before the state-of-charge conversion, 1/h."""
+CI_LOW_SUFFIX = "_ci95_low"
+CI_HIGH_SUFFIX = "_ci95_high"
+CAPACITY_HALF_LIFE = "capacity_half_life_h"
+FADE_PER_DAY = "fade_percent_per_day"
+FADE_PER_CYCLE = "fade_percent_per_cycle"
+TIME_TO_80 = "time_to_80_percent_h"
+MEAN_SOC = "mean_state_of_charge"
+FADE_MODEL = "model"
+"""Rate law chosen by AICc: 'linear', 'first_order', 'first_order_plateau' or 'second_order'."""
+DATA_KIND = "data_kind"
+"""'cycling' or 'decay'."""
+CELL_TYPE = "cell_type"
+"""'symmetric', 'full' or 'decay'."""
+CI_METHOD = "ci_method"
+N_POINTS_USED = "n_points_used"
+N_POINTS_READ = "n_points_read"
+SOURCE_FILE = "source_file"
+RATE_TABLE_COLUMNS: tuple[str, ...] = (
+    ID, STATUS, FADE_MODEL, DATA_KIND, CELL_TYPE, MEAN_SOC,
+    K_FIRST, K_FIRST + CI_LOW_SUFFIX, K_FIRST + CI_HIGH_SUFFIX,
+    LOG10_K_FIRST, LOG10_K_FIRST + CI_LOW_SUFFIX, LOG10_K_FIRST + CI_HIGH_SUFFIX,
+    K_SECOND, K_SECOND + CI_LOW_SUFFIX, K_SECOND + CI_HIGH_SUFFIX,
+    LOG10_K_SECOND, LOG10_K_SECOND + CI_LOW_SUFFIX, LOG10_K_SECOND + CI_HIGH_SUFFIX,
+    K_FADE, K_FADE + CI_LOW_SUFFIX, K_FADE + CI_HIGH_SUFFIX,
+    HALF_LIFE, HALF_LIFE + CI_LOW_SUFFIX, HALF_LIFE + CI_HIGH_SUFFIX,
+    CAPACITY_HALF_LIFE, FADE_PER_DAY, FADE_PER_CYCLE, TIME_TO_80,
+    CI_METHOD, N_POINTS_USED, N_POINTS_READ, SOURCE_FILE,
+)
+"""Columns of ``rates.csv`` in order. The target of the stability model is
+``log10_k_per_h`` (decomposition of the charged species, 1/h); second-order fits
+also fill ``log10_k_l_per_mol_per_h`` (L/(mol h)) when c0 is known."""

@@ -1,11 +1,12 @@
-"""Cycler and decay-series file import: header and unit detection, per-cycle table, hygiene.
+"""Cycler and decay-series file import: reading, header roles and unit detection.
 
 Reads CSV, TSV or XLSX files exported by battery cyclers (point level: time, cycle,
 step, current, voltage, charge/discharge capacity; or one row per cycle) and decay
-series (concentration, absorbance or NMR integral against time). Every action taken
-on the data (rows dropped, counters renumbered, spikes set aside) is written to a
-plain-language report so a user can check it. Times are converted to hours,
-capacities to mAh, concentrations to mol/L.
+series (concentration, absorbance or NMR integral against time). Times are converted
+to hours, capacities to mAh, concentrations to mol/L. :func:`load_series` then hands
+the columns to the clean-up rules of :mod:`redoxfront.cycling_hygiene`; every action
+taken on the data (rows dropped, counters renumbered, spikes set aside) is written to a
+plain-language report so a user can check it.
 """
 
 from __future__ import annotations
@@ -19,20 +20,12 @@ from typing import Mapping
 import numpy as np
 import pandas as pd
 
+from redoxfront.columns import CYCLE, TIME_H, USED
+from redoxfront.cycling_hygiene import (
+    decay_table, finish_cycle_table, fix_counter_resets, numeric, reduce_to_cycles,
+)
 from redoxfront.errors import InputError
 from redoxfront.units import SECONDS_PER_DAY, SECONDS_PER_HOUR
-
-# ---- per-cycle table columns (units in names) -----------------------------------
-CYCLE = "cycle"
-TIME_H = "time_h"
-CHARGE_CAPACITY = "charge_capacity_mah"
-DISCHARGE_CAPACITY = "discharge_capacity_mah"
-COULOMBIC_EFFICIENCY = "coulombic_efficiency_percent"
-RETENTION = "capacity_retention_percent"
-SIGNAL = "signal"
-"""The quantity that is fitted: capacity on the chosen basis (mAh) or the decay signal."""
-USED = "used"
-NOTE = "note"
 
 # ---- roles a column can play ----------------------------------------------------
 ROLES: tuple[str, ...] = (
@@ -97,9 +90,9 @@ class DetectedColumn:
 class SeriesData:
     """A per-cycle (or per-sample) table ready for fitting, with what was done to it.
 
-    ``table`` has the columns :data:`CYCLE`, :data:`TIME_H`, :data:`CHARGE_CAPACITY`,
-    :data:`DISCHARGE_CAPACITY`, :data:`COULOMBIC_EFFICIENCY`, :data:`RETENTION`,
-    :data:`SIGNAL`, :data:`USED`, :data:`NOTE`. ``kind`` is ``'cycling'`` or ``'decay'``.
+    ``table`` has the columns ``CYCLE``, ``TIME_H``, ``CHARGE_CAPACITY``,
+    ``DISCHARGE_CAPACITY``, ``COULOMBIC_EFFICIENCY``, ``RETENTION``, ``SIGNAL``, ``USED``,
+    ``NOTE`` of :mod:`redoxfront.columns`. ``kind`` is ``'cycling'`` or ``'decay'``.
     """
 
     source: str
@@ -225,13 +218,9 @@ def read_table(path: Path) -> list[pd.DataFrame]:
         raise InputError(f"cannot read as a {sep!r}-separated table: {exc}", source=str(path)) from exc
 
 
-def _numeric(series: pd.Series) -> pd.Series:
-    return pd.to_numeric(series, errors="coerce").astype(float)
-
-
 def _time_hours(col: pd.Series, det: DetectedColumn, time_unit: str | None, source: str,
                 report: list[str]) -> pd.Series:
-    values = _numeric(col)
+    values = numeric(col)
     if values.notna().sum() < max(1, 0.5 * col.notna().sum()):
         stamps = pd.to_datetime(col, errors="coerce")
         if stamps.notna().sum() >= max(1, 0.5 * col.notna().sum()):
@@ -249,61 +238,6 @@ def _time_hours(col: pd.Series, det: DetectedColumn, time_unit: str | None, sour
     return values * TIME_UNITS_H[unit]
 
 
-def _fix_resets(values: pd.Series, what: str, report: list[str], continue_by: float) -> pd.Series:
-    """Renumber a counter that falls back (restarted test) so that it keeps increasing."""
-    v = values.to_numpy(dtype=float).copy()
-    offset = 0.0
-    last = np.nan
-    n_resets = 0
-    for i, x in enumerate(v):
-        if np.isnan(x):
-            continue
-        if not np.isnan(last) and x + offset < last:
-            offset = last - x + continue_by
-            n_resets += 1
-            report.append(f"{what} fell back at data row {i + 1} (to {x:g}); later values shifted "
-                          f"by {offset:g} so they continue")
-        v[i] = x + offset
-        last = v[i]
-    return pd.Series(v, index=values.index)
-
-
-_REST_WORDS = ("rest", "ocv", "pause", "relax", "wait", "open circuit")
-
-
-def _direction(step: pd.Series | None, current: pd.Series | None) -> pd.Series:
-    """'charge', 'discharge', 'rest' or '' per row from the step text, else from the current sign.
-
-    Positive current is charge (our convention; see docs/fade.md).
-    """
-    n = len(step) if step is not None else len(current) if current is not None else 0
-    out = pd.Series([""] * n, index=(step if step is not None else current).index, dtype=object)
-    if step is not None:
-        text = step.astype(str).str.strip().str.lower()
-        rest = text.apply(lambda s: any(w in s for w in _REST_WORDS))
-        dis = text.str.contains(r"dis|dchg|dchrg|^d$|^d[_ ]", regex=True) & ~rest
-        chg = text.str.contains(r"charge|chg|chrg|^c$|^c[_ ]|^cc|^cv", regex=True) & ~dis & ~rest
-        out[rest] = "rest"
-        out[dis] = "discharge"
-        out[chg] = "charge"
-    if current is not None:
-        cur = _numeric(current)
-        tiny = 1e-6 * float(np.nanmax(np.abs(cur))) if cur.notna().any() else 0.0
-        unknown = out == ""
-        out[unknown & (cur.abs() <= tiny)] = "rest"
-        out[unknown & (cur > tiny)] = "charge"
-        out[unknown & (cur < -tiny)] = "discharge"
-    return out
-
-
-def _span(x: pd.Series) -> float:
-    x = x.dropna()
-    if x.empty:
-        return np.nan
-    d = float(x.max() - x.min())
-    return d if d > 0 else np.nan
-
-
 def _capacity(df: pd.DataFrame, cols: dict[str, DetectedColumn], capacity_unit: str | None,
               report: list[str]) -> dict[str, pd.Series]:
     out: dict[str, pd.Series] = {}
@@ -317,68 +251,8 @@ def _capacity(df: pd.DataFrame, cols: dict[str, DetectedColumn], capacity_unit: 
                 report.append(f"capacity unit of '{det.header}' not recognised "
                               f"({det.unit or 'none'}); values used as given and labelled mAh; "
                               "set [fade] capacity_unit to fix")
-            out[role] = _numeric(df[det.header]).abs() * factor
+            out[role] = numeric(df[det.header]).abs() * factor
     return out
-
-
-def _point_level_to_cycles(df: pd.DataFrame, cols: dict[str, DetectedColumn],
-                           caps: dict[str, pd.Series], source: str,
-                           report: list[str]) -> pd.DataFrame:
-    step = df[cols["step"].header] if "step" in cols else None
-    current = df[cols["current"].header] if "current" in cols else None
-    direction = _direction(step, current) if (step is not None or current is not None) else None
-    work = pd.DataFrame({CYCLE: df["_cycle"], TIME_H: df["_time_h"]})
-    for role, s in caps.items():
-        work[role] = s
-    if direction is not None:
-        rest = direction == "rest"
-        if rest.any():
-            report.append(f"{int(rest.sum())} rest-step rows (no current or rest/OCV step) set aside")
-        work["_dir"] = direction
-        work = work[~rest]
-    rows = []
-    for cyc, g in work.groupby(CYCLE, sort=True):
-        row = {CYCLE: cyc, TIME_H: float(g[TIME_H].max())}
-        if "charge_capacity" in g or "discharge_capacity" in g:
-            row[CHARGE_CAPACITY] = _span(g["charge_capacity"]) if "charge_capacity" in g else np.nan
-            row[DISCHARGE_CAPACITY] = (
-                _span(g["discharge_capacity"]) if "discharge_capacity" in g else np.nan)
-        else:
-            if "_dir" not in g:
-                raise InputError(
-                    "one capacity column but no step type or current to tell charge from "
-                    "discharge; set [fade] column_map.step or column_map.current, or give "
-                    "charge_capacity and discharge_capacity columns",
-                    source=source,
-                )
-            row[CHARGE_CAPACITY] = _span(g.loc[g["_dir"] == "charge", "capacity"])
-            row[DISCHARGE_CAPACITY] = _span(g.loc[g["_dir"] == "discharge", "capacity"])
-        rows.append(row)
-    report.append(f"point-level data reduced to {len(rows)} cycles (capacity = rise of the "
-                  "counter within each cycle, time = end of the cycle)")
-    return pd.DataFrame(rows, columns=[CYCLE, TIME_H, CHARGE_CAPACITY, DISCHARGE_CAPACITY])
-
-
-def flag_spikes(y: np.ndarray, threshold: float, window: int = 7) -> np.ndarray:
-    """Points further than ``threshold`` robust standard deviations from a running median.
-
-    Robust scale: 1.4826 x median absolute deviation from the running median (Hampel
-    identifier; Hampel, J. Am. Stat. Assoc. 1974, 69, 383), floored at the median step
-    between neighbours and at 0.1 % of the median value. The first and last
-    ``window // 2`` points are not tested.
-    """
-    s = pd.Series(y, dtype=float)
-    med = s.rolling(window, center=True, min_periods=window).median()  # edges untested
-    resid = (s - med).abs()
-    if not resid.notna().any():
-        return np.zeros(len(y), dtype=bool)
-    # floors: the typical step between neighbours (a spike shifts its neighbours' medians
-    # by about one step on a steep trend) and 0.1 % of the level
-    step = float(np.nanmedian(np.abs(np.diff(s.to_numpy()))))
-    scale = max(1.4826 * float(np.nanmedian(resid)), step, 1e-3 * abs(float(np.nanmedian(s))))
-    if scale == 0.0:
-        return np.zeros(len(y), dtype=bool)
-    return (resid > threshold * scale).to_numpy()
 
 
 def load_series(
@@ -451,82 +325,27 @@ def load_series(
             "column_map.cycle to the header to use",
             source=source,
         )
-    df["_cycle"] = _numeric(df[cols["cycle"].header])
+    df["_cycle"] = numeric(df[cols["cycle"].header])
     missing = df["_cycle"].isna() | ("time" in cols and df["_time_h"].isna())
     if missing.any():
         report.append(f"{int(missing.sum())} rows with a missing or non-numeric cycle or time "
                       "dropped")
         df = df[~missing].copy()
     if "time" in cols:
-        df["_time_h"] = _fix_resets(df["_time_h"], "time", report, 0.0)
-    df["_cycle"] = _fix_resets(df["_cycle"], "cycle counter", report, 1.0)
+        df["_time_h"] = fix_counter_resets(df["_time_h"], "time", report, 0.0)
+    df["_cycle"] = fix_counter_resets(df["_cycle"], "cycle counter", report, 1.0)
     caps = _capacity(df, cols, capacity_unit, report)
-    point_level = bool(df["_cycle"].duplicated().mean() > 0.3)  # many rows per cycle
-    if point_level:
-        cyc = _point_level_to_cycles(df, cols, caps, source, report)
-    else:
-        dup = df["_cycle"].duplicated(keep="last")
-        if dup.any():
-            report.append(f"{int(dup.sum())} repeated cycle rows: the last row of each cycle kept")
-            df = df[~dup]
-        cyc = pd.DataFrame({
-            CYCLE: df["_cycle"].to_numpy(),
-            TIME_H: df["_time_h"].to_numpy(),
-            CHARGE_CAPACITY: caps["charge_capacity"].loc[df.index].to_numpy()
-            if "charge_capacity" in caps else np.nan,
-            DISCHARGE_CAPACITY: caps["discharge_capacity"].loc[df.index].to_numpy()
-            if "discharge_capacity" in caps else
-            (caps["capacity"].loc[df.index].to_numpy() if "capacity" in caps else np.nan),
-        })
-        if "capacity" in caps and "discharge_capacity" not in caps:
-            report.append("single capacity column per cycle taken as discharge capacity")
+    cyc = reduce_to_cycles(df["_cycle"], df["_time_h"], caps,
+                           df[cols["step"].header] if "step" in cols else None,
+                           df[cols["current"].header] if "current" in cols else None,
+                           source, report)
     if "time" not in cols:
         cyc[TIME_H] = (cyc[CYCLE] - cyc[CYCLE].min() + 1) * float(hours_per_cycle or 0.0)
         report.append(f"no time column: time = cycle x {hours_per_cycle:g} h (hours_per_cycle)")
-    cyc = cyc.sort_values(CYCLE).reset_index(drop=True)
-    cyc[COULOMBIC_EFFICIENCY] = 100.0 * cyc[DISCHARGE_CAPACITY] / cyc[CHARGE_CAPACITY]
-    basis = DISCHARGE_CAPACITY if capacity_basis == "discharge" else CHARGE_CAPACITY
-    cyc[SIGNAL] = cyc[basis]
-    cyc[USED] = True
-    cyc[NOTE] = ""
-    if skip_first_cycles > 0:
-        first = cyc.index[: skip_first_cycles]
-        cyc.loc[first, USED] = False
-        cyc.loc[first, NOTE] = "skipped (skip_first_cycles)"
-        report.append(f"first {len(first)} cycles skipped (skip_first_cycles)")
-    bad = cyc[USED] & ~(cyc[SIGNAL] > 0)
-    if bad.any():
-        cyc.loc[bad, USED] = False
-        cyc.loc[bad, NOTE] = f"no {capacity_basis} capacity"
-        report.append(f"{int(bad.sum())} cycles without a {capacity_basis} capacity (incomplete or "
-                      f"missing) set aside: cycles {_short(cyc.loc[bad, CYCLE])}")
-    _spikes(cyc, drop_spikes, spike_threshold, report)
-    first_used = cyc.loc[cyc[USED], SIGNAL]
-    ref = float(first_used.iloc[0]) if not first_used.empty else np.nan
-    cyc[RETENTION] = 100.0 * cyc[SIGNAL] / ref
+    cyc = finish_cycle_table(cyc, capacity_basis, skip_first_cycles, drop_spikes, spike_threshold,
+                             report)
     label = f"{capacity_basis} capacity / mAh"
     return SeriesData(source, "cycling", cyc, label, used_cols, tuple(report), dataset_id)
-
-
-def _short(values: pd.Series) -> str:
-    v = [f"{x:g}" for x in values.tolist()]
-    return ", ".join(v[:8]) + (f" ... ({len(v)} in all)" if len(v) > 8 else "")
-
-
-def _spikes(tab: pd.DataFrame, drop: bool, threshold: float, report: list[str]) -> None:
-    if not drop:
-        return
-    idx = tab.index[tab[USED]]
-    if len(idx) < 5:
-        return
-    flags = flag_spikes(tab.loc[idx, SIGNAL].to_numpy(float), threshold)
-    spikes = idx[flags]
-    if len(spikes):
-        tab.loc[spikes, USED] = False
-        tab.loc[spikes, NOTE] = "spike"
-        where = tab.loc[spikes, CYCLE] if tab[CYCLE].notna().any() else tab.loc[spikes, TIME_H]
-        report.append(f"{len(spikes)} spike points (more than {threshold:g} robust SD from the "
-                      f"running median) set aside: {_short(where)}")
 
 
 def _decay_series(df: pd.DataFrame, cols: dict[str, DetectedColumn], source: str,
@@ -534,7 +353,7 @@ def _decay_series(df: pd.DataFrame, cols: dict[str, DetectedColumn], source: str
                   drop_spikes: bool, spike_threshold: float) -> SeriesData:
     role = next(r for r in DECAY_ROLES if r in cols)
     det = cols[role]
-    y = _numeric(df[det.header])
+    y = numeric(df[det.header])
     factor = None
     label = role
     if role == "concentration":
@@ -545,21 +364,6 @@ def _decay_series(df: pd.DataFrame, cols: dict[str, DetectedColumn], source: str
             factor = 1.0
         y = y * factor
         label = "concentration / (mol/L)"
-    tab = pd.DataFrame({CYCLE: np.nan, TIME_H: df["_time_h"].to_numpy(), SIGNAL: y.to_numpy()})
-    missing = tab[TIME_H].isna() | tab[SIGNAL].isna()
-    if missing.any():
-        report.append(f"{int(missing.sum())} rows with a missing or non-numeric time or signal dropped")
-        tab = tab[~missing]
-    if not tab[TIME_H].is_monotonic_increasing:
-        report.append("rows sorted by time (decay series given out of order)")
-        tab = tab.sort_values(TIME_H, kind="stable")
-    tab = tab.reset_index(drop=True)
-    tab[USED] = True
-    tab[NOTE] = ""
-    _spikes(tab, drop_spikes, spike_threshold, report)
-    for col in (CHARGE_CAPACITY, DISCHARGE_CAPACITY, COULOMBIC_EFFICIENCY):
-        tab[col] = np.nan
-    first = tab.loc[tab[USED], SIGNAL]
-    tab[RETENTION] = 100.0 * tab[SIGNAL] / (float(first.iloc[0]) if not first.empty else np.nan)
+    tab = decay_table(df["_time_h"].to_numpy(), y.to_numpy(), drop_spikes, spike_threshold, report)
     return SeriesData(source, "decay", tab, label, used_cols, tuple(report), dataset_id,
                       signal_unit_factor_to_mol_per_l=1.0 if role == "concentration" else None)

@@ -15,10 +15,12 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-from redoxfront.cycling import SIGNAL, TIME_H, USED  # noqa: E402
+from redoxfront.columns import (  # noqa: E402
+    CELL_TYPE, CI_HIGH_SUFFIX, CI_LOW_SUFFIX, K_FIRST, SIGNAL, TIME_H, USED,
+)
 
 if TYPE_CHECKING:
-    from redoxfront.fade import DatasetResult
+    from redoxfront.fade_step import DatasetResult
 
 _LABELS = {
     "linear": "linear (zero order)",
@@ -52,9 +54,9 @@ def plot_fade_fit(result: "DatasetResult", path: str | Path) -> Path:
                 label=f"{_LABELS[name]}{' (chosen)' if chosen else ''}, AICc {fit.aicc_:.1f}")
     row = result.row
     ax.set_ylabel(result.series.signal_label)
-    ax.set_title(f"{result.dataset_id}: k = {row['k_per_h']:.3g} 1/h "
-                 f"[{row['k_per_h_ci95_low']:.3g}, {row['k_per_h_ci95_high']:.3g}], "
-                 f"{row['cell_type']}", fontsize=9)
+    ax.set_title(f"{result.dataset_id}: k = {row[K_FIRST]:.3g} 1/h "
+                 f"[{row[K_FIRST + CI_LOW_SUFFIX]:.3g}, {row[K_FIRST + CI_HIGH_SUFFIX]:.3g}], "
+                 f"{row[CELL_TYPE]}", fontsize=9)
     ax.legend(fontsize=7, loc="best")
     fit = result.chosen_fit
     t_used = t_all[used]

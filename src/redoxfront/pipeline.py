@@ -35,7 +35,7 @@ def run_campaign(
     """Run every step that has its inputs; return a summary (also echoed as it goes)."""
     from redoxfront.calibration import calibrate_campaign
     from redoxfront.compute import compute_campaign
-    from redoxfront.fade import fade_campaign
+    from redoxfront.fade_step import fade_campaign
     from redoxfront.model_step import fit_campaign
     from redoxfront.ranking import rank_campaign
 
@@ -55,7 +55,7 @@ def run_campaign(
         echo(f"           rejected: {p}")
 
     if camp.inputs.cycling:
-        rates = fade_campaign(camp.folder, progress=progress)
+        rates = fade_campaign(camp, progress=progress)
         fitted = int((rates["status"] == "ok").sum()) if "status" in rates else len(rates)
         note("fade", f"{fitted} of {len(rates)} datasets fitted (results/rates.csv, results/fade_report.md)")
     else:
