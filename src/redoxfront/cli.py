@@ -200,3 +200,14 @@ def run_command(campaign: Path, workers: int | None, cluster: str | None, quiet:
     from redoxfront.pipeline import run_campaign
 
     run_campaign(campaign, workers=workers, dask_address=cluster, progress=not quiet, echo=click.echo)
+
+
+@main.command("report")
+@CAMPAIGN_ARG
+@friendly_errors
+def report_command(campaign: Path) -> None:
+    """Write results/report.html from what the other steps wrote."""
+    from redoxfront.campaign import load_campaign
+    from redoxfront.report import write_report
+
+    click.echo(f"written: {write_report(load_campaign(campaign))}")

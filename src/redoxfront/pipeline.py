@@ -1,7 +1,7 @@
 """The whole job on one campaign, step by step: what ``redoxfront run`` does.
 
 compute -> fade fitting (if cycling files are given) -> calibration -> rate model
-(if rates are available) -> cell metrics and ranking. Each step is the library
+(if rates are available) -> cell metrics and ranking -> the HTML report. Each step is the library
 function its own command calls; a step without its inputs is skipped with the reason.
 """
 
@@ -35,6 +35,7 @@ def run_campaign(
     """Run every step that has its inputs; return a summary (also echoed as it goes)."""
     from redoxfront.calibration import calibrate_campaign
     from redoxfront.compute import compute_campaign
+    from redoxfront.report import write_report
     from redoxfront.fade_step import fade_campaign
     from redoxfront.model_step import fit_campaign
     from redoxfront.ranking import rank_campaign
@@ -67,14 +68,16 @@ def run_campaign(
          else "skipped: no [inputs] measured_potentials; potentials stay uncalibrated")
 
     rates_given = camp.inputs.measured_rates or (camp.results_dir / "rates.csv").exists()
-    if not rates_given:
+    if rates_given:
+        fit = fit_campaign(camp)
+        stats = fit.statistics
+        note("fit", f"model on {', '.join(fit.terms)}: R2 {stats.get('r2') or float('nan'):.3f}, "
+                    f"Q2(LOO) {stats.get('q2_loo') or float('nan'):.3f} (results/model.json, results/predictions.csv)")
+        ranked = rank_campaign(camp, progress=progress)
+        note("rank", f"{len(ranked)} candidates ranked (results/ranking.csv, results/picks.csv, results/figures/)")
+    else:
         note("fit", "skipped: no measured rates and no fitted fade rates")
-        return summary
-    fit = fit_campaign(camp)
-    note("fit", f"model on {', '.join(fit.terms)}: "
-                f"R2 {(fit.statistics.get('r2') or float('nan')):.3f}, Q2(LOO) {(fit.statistics.get('q2_loo') or float('nan')):.3f} "
-                "(results/model.json, results/predictions.csv)")
+        note("rank", "skipped: half-lives need the rate model")
 
-    ranked = rank_campaign(camp, progress=progress)
-    note("rank", f"{len(ranked)} candidates ranked (results/ranking.csv, results/picks.csv, results/figures/)")
+    note("report", f"written: {write_report(camp)}")
     return summary

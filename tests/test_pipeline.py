@@ -1,0 +1,71 @@
+"""The whole job on a small campaign: every step runs, files appear, the report escapes input."""
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from redoxfront import columns as C
+from redoxfront.campaign import load_campaign
+from redoxfront.compute import compute_campaign
+from redoxfront.pipeline import run_campaign
+
+SMILES = ["COc1ccccc1", "Cc1ccc(C)cc1", "COc1ccc(C)cc1", "COc1ccc(OC)cc1", "COc1ccccc1OC",
+          "Cc1ccc(OC)c(C)c1", "CC(C)(C)c1ccc(OC)cc1"]
+IDS = ["anisole", "p-xylene", "4-me-anisole", "dmb", "veratrole", "dime-anisole", "x<script>alert(1)</script>"]
+
+
+def _campaign(folder: Path) -> Path:
+    (folder / "inputs").mkdir(parents=True)
+    pd.DataFrame({"id": IDS, "smiles": SMILES, "solubility_mol_per_l": 0.8}).to_csv(
+        folder / "inputs" / "candidates.csv", index=False)
+    (folder / "campaign.toml").write_text(
+        'name = "pipeline test"\n'
+        "[inputs]\nmeasured_potentials = 'inputs/potentials.csv'\nmeasured_rates = 'inputs/rates.csv'\n"
+        "[compute]\nworkers = 1\n[compute.conformers]\nn_generate = 2\nrefine_lowest = 1\n"
+        "[model]\nterms = ['potential', 'spin_exposure_angstrom2_mean']\nn_permutations = 100\n"
+        "[cell]\ncounter = 'potential'\ncounter_potential_v = -2.0\n"
+        "[ranking]\nn_draws = 200\nn_suggestions = 2\n"
+        "[report]\nnote = 'test data made by a known rule'\n"
+    )
+    return folder
+
+
+def test_run_every_step_and_report(tmp_path):
+    folder = _campaign(tmp_path)
+    camp = load_campaign(folder)
+    raw = compute_campaign(camp, progress=False).table.set_index(C.ID)
+    pot = raw[C.potential_uncalibrated("fc")]
+    # measured = 0.30 + 0.80 x computed exactly, reported vs SCE for half of them
+    # (Connelly & Geiger, Chem. Rev. 1996, 96, 877: Fc+/Fc = +0.40 V vs SCE in MeCN)
+    made = IDS[:6]
+    meas = pd.DataFrame({"id": made, "potential_v": 0.30 + 0.80 * pot[made].to_numpy(),
+                         "reference": ["fc", "sce"] * 3, "solvent": "acetonitrile"})
+    meas.loc[meas.reference == "sce", "potential_v"] += 0.40
+    meas.to_csv(folder / "inputs" / "potentials.csv", index=False)
+    e_cal = 0.30 + 0.80 * pot[made]
+    expo = raw.loc[made, "spin_exposure_angstrom2_mean"]
+    noise = np.random.default_rng(0).normal(0, 0.01, len(made))
+    log10k = -3.0 + 1.0 * e_cal + 0.10 * expo + noise
+    pd.DataFrame({"id": made, C.LOG10_K_FIRST: log10k.to_numpy()}).to_csv(folder / "inputs" / "rates.csv", index=False)
+
+    lines: list[str] = []
+    run_campaign(folder, progress=False, echo=lines.append)
+    steps = [ln.split()[0] for ln in lines if not ln.startswith(" ")]
+    assert steps == ["compute", "fade", "calibrate", "fit", "rank", "report"]
+    res = folder / "results"
+    cal = json.loads((res / "calibration.json").read_text())
+    assert cal["lines"][0]["slope"] == pytest.approx(0.80, abs=1e-6)  # exact rule recovered
+    assert cal["lines"][0]["intercept_v"] == pytest.approx(0.30, abs=1e-6)
+    model = json.loads((res / "model.json").read_text())
+    assert model["coefficients"][2] == pytest.approx(0.10, abs=0.02)
+    ranking = pd.read_csv(res / "ranking.csv")
+    assert len(ranking) == 7 and ranking[C.HALF_LIFE].notna().all()
+    html = (res / "report.html").read_text()
+    assert "<script>alert(1)</script>" not in html  # every string is escaped
+    assert "x&lt;script&gt;alert(1)&lt;/script&gt;" in html
+    assert "test data made by a known rule" in html
+    assert "data:image/png;base64," in html  # figures embedded: one self-contained file
+    assert "safety data sheets" in html
