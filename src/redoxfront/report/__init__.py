@@ -43,7 +43,7 @@ th{background:#f5f7fa}td.t,th.t{text-align:left}
 .banner{background:#fff3c4;border:1px solid #f0b429;padding:.6rem 1rem;border-radius:4px}
 .warn{color:#8d2b0b}.muted{color:#616e7c;font-size:.85rem}
 img{max-width:100%;border:1px solid #e4e7eb;margin:.5rem 0}
-code{font-size:.85rem}
+code{font-size:.85rem}.scroll{overflow-x:auto}
 """
 
 
@@ -72,7 +72,8 @@ def _table(df: pd.DataFrame, text_columns: Iterable[str] = ()) -> str:
             f'<td class="{"t" if c in text else ""}">{_e(_fmt(r[c]))}</td>' for c in df.columns
         )
         rows.append(f"<tr>{cells}</tr>")
-    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>"
+    return (f'<div class="scroll"><table><thead><tr>{head}</tr></thead>'
+            f"<tbody>{''.join(rows)}</tbody></table></div>")
 
 
 def _figure(path: Path, alt: str) -> str:
