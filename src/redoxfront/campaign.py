@@ -140,13 +140,16 @@ class OptimizerSettings:
 
     Defaults are the customary quantum-chemistry thresholds (max force 4.5e-4,
     RMS force 3.0e-4 Eh/bohr, max step 1.8e-3, RMS step 1.2e-3 bohr; common
-    practice, no source).
+    practice, no source). Converged: both force criteria, and either both step
+    criteria or an energy change below ``energy_change_eh`` (so a flat torsion with
+    converged forces does not keep the optimiser wandering).
     """
 
     max_force_eh_per_bohr: float = field(default=4.5e-4, metadata=bounded(1e-7, None))
     rms_force_eh_per_bohr: float = field(default=3.0e-4, metadata=bounded(1e-7, None))
     max_step_bohr: float = field(default=1.8e-3, metadata=bounded(1e-7, None))
     rms_step_bohr: float = field(default=1.2e-3, metadata=bounded(1e-7, None))
+    energy_change_eh: float = field(default=1e-6, metadata=bounded(0.0, None))
     max_iterations: int = field(default=300, metadata=bounded(1, 10000))
     trust_radius_bohr: float = field(default=0.3, metadata=bounded(0.01, 2.0))
 

@@ -229,10 +229,10 @@ def generate_conformers(
         raise InputError("RDKit could not embed 3D coordinates", field="smiles")
     energies: list[float]
     if AllChem.MMFFHasAllMoleculeParams(mol):
-        out = AllChem.MMFFOptimizeMoleculeConfs(mol, numThreads=1, maxIters=500)
+        out = AllChem.MMFFOptimizeMoleculeConfs(mol, numThreads=1, maxIters=200)
         energies = [e for _, e in out]
     elif AllChem.UFFHasAllMoleculeParams(mol):
-        out = AllChem.UFFOptimizeMoleculeConfs(mol, numThreads=1, maxIters=500)
+        out = AllChem.UFFOptimizeMoleculeConfs(mol, numThreads=1, maxIters=200)
         energies = [e for _, e in out]
     else:
         energies = [0.0] * len(cids)
