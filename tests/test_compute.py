@@ -1,6 +1,5 @@
 """The compute step end to end: potentials, store, resume, concurrency, Dask, failures."""
 
-import os
 import signal
 import sqlite3
 import subprocess

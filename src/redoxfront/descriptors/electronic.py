@@ -19,7 +19,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from redoxfront.errors import EngineError
 from redoxfront.records import StateResult
 from redoxfront.units import ANGSTROM_BOHR, E_BOHR_DEBYE, HARTREE_EV
 
