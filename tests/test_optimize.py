@@ -94,16 +94,20 @@ def test_water_geometry_close_to_experiment():
     assert angle == pytest.approx(104.5, abs=5.0)
 
 
-def test_rfo_level_shift_equals_lowest_eigenvalue_of_augmented_hessian():
-    from redoxfront.optimize import _rfo_shift
+def test_rfo_step_equals_the_level_shifted_newton_step():
+    from redoxfront.optimize import rfo_step
 
     rng = np.random.default_rng(1)
     for _ in range(10):
-        w = np.sort(rng.uniform(1e-3, 1.0, 30))
-        g = rng.normal(size=30) * rng.uniform(0.0, 1.0)
+        a = rng.normal(size=(30, 30))
+        h = a @ a.T / 30 + 1e-3 * np.eye(30)
+        g = rng.normal(size=30) * rng.uniform(0.01, 1.0)
         aug = np.zeros((31, 31))
-        aug[:-1, :-1] = np.diag(w)
+        aug[:-1, :-1] = h
         aug[:-1, -1] = aug[-1, :-1] = g
-        # Banerjee et al., J. Phys. Chem. 1985, 89, 52: the RFO shift is the lowest eigenvalue
-        # of the augmented Hessian; numpy's eigvalsh (LAPACK) is the reference here
-        assert _rfo_shift(w, g) == pytest.approx(np.linalg.eigvalsh(aug)[0], abs=1e-10)
+        # Banerjee et al., J. Phys. Chem. 1985, 89, 52: the RFO step is the Newton step with the
+        # Hessian shifted by the lowest eigenvalue mu of the augmented Hessian, dq = -(H - mu)^-1 g;
+        # numpy's eigvalsh and solve (LAPACK) are the reference here
+        mu = np.linalg.eigvalsh(aug)[0]
+        expected = -np.linalg.solve(h - mu * np.eye(30), g)
+        assert np.allclose(rfo_step(h, g), expected, atol=1e-8)

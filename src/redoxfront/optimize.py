@@ -17,7 +17,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy.optimize import brentq
+import scipy.linalg
 
 from redoxfront.campaign import OptimizerSettings
 from redoxfront.units import ANGSTROM_BOHR, BOHR_ANGSTROM
@@ -28,6 +28,7 @@ _LINDH_ALPHA = np.array([[1.0000, 0.3949, 0.3949], [0.3949, 0.2800, 0.2800], [0.
 _LINDH_RREF = np.array([[1.35, 2.10, 2.53], [2.10, 2.87, 3.40], [2.53, 3.40, 3.40]])
 _LINDH_K_STRETCH, _LINDH_K_BEND, _LINDH_K_TORSION = 0.45, 0.15, 0.005
 _NEIGHBOUR_RHO = 0.05  # pairs with rho above this span angles and torsions
+_REBUILD_EVERY = 25  # optimisation steps between refreshes of the internal modes
 
 
 def _period_index(numbers: np.ndarray) -> np.ndarray:
@@ -165,23 +166,39 @@ def is_converged(
     return bool(small_step or flat)
 
 
-def _rfo_shift(w: np.ndarray, g: np.ndarray) -> float:
-    """Lowest eigenvalue of the RFO augmented Hessian [[diag(w), g], [g, 0]].
+def rfo_step(hessian: np.ndarray, gradient: np.ndarray) -> np.ndarray:
+    """Rational-function step: from the lowest eigenvector v of [[H, g], [g, 0]], dq = v[:-1] / v[-1].
 
-    It is the root below min(w) of mu = sum_i g_i^2 / (mu - w_i), found by bracketing
-    (the function is monotonic there), which avoids a second diagonalisation.
+    Only the lowest eigenpair is computed (LAPACK's MRRR driver), which is the whole
+    per-step linear algebra of the optimiser (Banerjee et al., J. Phys. Chem. 1985, 89, 52).
     """
-    g2 = g * g
-    lo_w = w.min()
+    m = len(gradient)
+    aug = np.zeros((m + 1, m + 1))
+    aug[:m, :m] = hessian
+    aug[:m, m] = aug[m, :m] = gradient
+    _, vec = scipy.linalg.eigh(aug, subset_by_index=[0, 0], driver="evr", check_finite=False)
+    v = vec[:, 0]
+    if abs(v[m]) < 1e-10:  # step would be unbounded: fall back to steepest descent
+        return -gradient
+    return v[:m] / v[m]
 
-    def f(mu: float) -> float:
-        return mu - float((g2 / (mu - w)).sum())
 
-    upper = lo_w - 1e-12
-    if f(upper) <= 0:  # gradient has no weight on the lowest mode: shift at the pole
-        return float(upper)
-    span = float(np.sqrt(g2.sum())) + 1.0
-    return float(brentq(f, lo_w - span, upper, xtol=1e-14))
+def internal_modes(numbers: np.ndarray, coords_bohr: np.ndarray, hessian: np.ndarray,
+                   floor: float = 1e-3) -> tuple[np.ndarray, np.ndarray]:
+    """Approximate normal coordinates: eigenvectors of the Hessian without rigid-body motion.
+
+    Returns (V, w): V (3N, 3N - 6 or 3N - 5) orthonormal internal modes, w their
+    curvatures (Eh/bohr^2) floored at ``floor``. Optimising in this fixed basis avoids a
+    projection and a full diagonalisation at every step (approximate normal coordinates:
+    Eckert, Pulay & Werner, J. Comput. Chem. 1997, 18, 1473; from memory).
+    """
+    x = np.asarray(coords_bohr, dtype=float).reshape(-1, 3)
+    n3 = x.size
+    rb = _rigid_body_basis(x)
+    proj = np.eye(n3) - rb @ rb.T
+    w, v = np.linalg.eigh(proj @ hessian @ proj)
+    keep = np.sort(np.argsort(np.abs(v.T @ rb).sum(1))[: n3 - rb.shape[1]])
+    return v[:, keep], np.maximum(w[keep], floor)
 
 
 @dataclass(frozen=True)
@@ -207,14 +224,14 @@ def optimize_geometry(
 ) -> OptimizationResult:
     """Minimise the engine energy from ``positions_angstrom`` by trust-radius RFO.
 
-    Convergence (Eh, bohr) follows :class:`~redoxfront.campaign.OptimizerSettings`:
-    max and RMS force and max and RMS predicted step all below their thresholds,
-    or the max force 100 times below its threshold.
+    Steps are taken in approximate normal coordinates of the Lindh model Hessian,
+    updated by BFGS. Convergence (Eh, bohr): :func:`is_converged` with the
+    :class:`~redoxfront.campaign.OptimizerSettings` thresholds.
     """
     numbers = np.asarray(numbers)
     x = np.asarray(positions_angstrom, dtype=float).ravel() * ANGSTROM_BOHR
-    n3 = x.size
-    hess = lindh_hessian(numbers, x.reshape(-1, 3))
+    modes, w = internal_modes(numbers, x, lindh_hessian(numbers, x.reshape(-1, 3)))
+    hq = np.diag(w)
     trust = settings.trust_radius_bohr
     res = engine.compute(numbers, x.reshape(-1, 3) * BOHR_ANGSTROM, charge, uhf, spin_polarized=spin_polarized)
     calls = 1
@@ -222,27 +239,21 @@ def optimize_geometry(
     it = 0
     last_change: float | None = None
     for it in range(1, settings.max_iterations + 1):
-        g = res.gradient_eh_per_bohr.ravel()
-        rb = _rigid_body_basis(x.reshape(-1, 3))
-        proj = np.eye(n3) - rb @ rb.T
-        gp = proj @ g
-        hp = proj @ hess @ proj
-        w, v = np.linalg.eigh(hp)
-        # drop the rigid-body modes, keep a floor on the curvature of the rest
-        keep = np.argsort(np.abs(v.T @ rb).sum(1))[: n3 - rb.shape[1]]
-        w, v = np.maximum(w[keep], 1e-3), v[:, keep]
         if w.size == 0:  # a single atom has nothing to optimise
             converged = True
             break
-        gq = v.T @ gp
-        mu = _rfo_shift(w, gq)
-        dq = -gq / (w - mu)
+        if it % _REBUILD_EVERY == 0:  # refresh the modes at the current geometry
+            modes, w = internal_modes(numbers, x, modes @ hq @ modes.T)
+            hq = np.diag(w)
+        g = res.gradient_eh_per_bohr.ravel()
+        gq = modes.T @ g
+        dq = rfo_step(hq, gq)
         norm = np.linalg.norm(dq)
         if norm > trust:
             dq *= trust / norm
-        step = v @ dq
-        predicted = gq @ dq + 0.5 * (dq * w * dq).sum()
-        if is_converged(settings, gp, step, last_change):
+        step = modes @ dq
+        predicted = gq @ dq + 0.5 * dq @ hq @ dq
+        if is_converged(settings, modes @ gq, step, last_change):
             converged = True
             break
         x_new = x + step
@@ -255,12 +266,12 @@ def optimize_geometry(
             trust = max(0.25 * np.linalg.norm(dq), 0.01)
         elif ratio > 0.75 and np.linalg.norm(dq) > 0.8 * trust:
             trust = min(2.0 * trust, 1.0)
-        # BFGS update of the Cartesian Hessian; skip when the curvature condition fails
-        y = new.gradient_eh_per_bohr.ravel() - g
-        sy = step @ y
+        # BFGS update in the mode basis; skipped when the curvature condition fails
+        y = modes.T @ new.gradient_eh_per_bohr.ravel() - gq
+        sy = dq @ y
         if sy > 1e-10:
-            hs = hess @ step
-            hess = hess + np.outer(y, y) / sy - np.outer(hs, hs) / (step @ hs)
+            hs = hq @ dq
+            hq = hq + np.outer(y, y) / sy - np.outer(hs, hs) / (dq @ hs)
         x, res = x_new, new
     return OptimizationResult(
         positions_angstrom=x.reshape(-1, 3) * BOHR_ANGSTROM,

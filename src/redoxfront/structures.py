@@ -220,7 +220,7 @@ def generate_conformers(
     params = AllChem.ETKDGv3()
     params.randomSeed = seed
     params.numThreads = 1
-    params.pruneRmsThresh = -1.0
+    params.pruneRmsThresh = settings.rmsd_threshold_angstrom  # skip near-duplicates before MMFF
     cids = list(AllChem.EmbedMultipleConfs(mol, numConfs=settings.n_generate, params=params))
     if not cids:
         params.useRandomCoords = True
