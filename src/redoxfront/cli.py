@@ -54,17 +54,19 @@ CAMPAIGN_ARG = click.argument(
 @click.option("--workers", type=int, default=None, help="Parallel workers (default: compute.workers).")
 @click.option("--cluster", default=None, metavar="ADDRESS",
               help="Run on a Dask scheduler at ADDRESS, or 'local' for a Dask cluster on this machine.")
+@click.option("--potentials-only", is_flag=True,
+              help="Skip the steric and electronic descriptors (a fast first pass over a large library).")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 @friendly_errors
 def compute_command(campaign: Path, candidates: Path | None, out: Path | None, workers: int | None,
-                    cluster: str | None, quiet: bool) -> None:
+                    cluster: str | None, potentials_only: bool, quiet: bool) -> None:
     """Optimise both redox states of every candidate and write uncalibrated potentials."""
     from redoxfront.campaign import load_campaign
     from redoxfront.compute import compute_campaign
 
     camp = load_campaign(campaign)
     report = compute_campaign(camp, candidates_path=candidates, out_path=out, workers=workers,
-                              dask_address=cluster, progress=not quiet)
+                              dask_address=cluster, progress=not quiet, describe=not potentials_only)
     ok = int((report.table.get("status", []) == "ok").sum()) if len(report.table) else 0
     failed = len(report.table) - ok
     click.echo(

@@ -215,12 +215,14 @@ def compute_candidates(
     dask_address: str | None = None,
     progress: bool = True,
     sections: dict[str, Any] | None = None,
+    describe: bool = True,
 ) -> tuple[list[CandidateOutcome], float]:
     """Compute every candidate and its descriptor row (local pool or Dask), in input order.
 
-    ``sections``: the campaign's raw ``sites`` and ``descriptors`` tables.
+    ``sections``: the campaign's raw ``sites`` and ``descriptors`` tables;
+    ``describe=False`` leaves the descriptors out (potentials only, for a first pass).
     """
-    sections = sections or {}
+    sections = (sections or {}) if describe else None
     t0 = time.perf_counter()
     store_path = str(store_path)
     workers = settings.workers if workers is None else workers
@@ -259,15 +261,16 @@ def candidate_task(
     settings: ComputeSettings,
     store_path: str | None,
     stored: dict[str, dict] | None,
-    sections: dict[str, Any],
+    sections: dict[str, Any] | None,
 ) -> CandidateOutcome:
     """Compute one candidate and its descriptor row (runs in a worker).
 
-    ``sections``: the campaign's raw ``sites`` and ``descriptors`` tables.
+    ``sections``: the campaign's raw ``sites`` and ``descriptors`` tables, or None for
+    no descriptors (potentials only).
     """
     out = compute_candidate(candidate, settings, store_path, stored)
     row = candidate_row(out, settings)
-    if out.states is not None:
+    if out.states is not None and sections is not None:
         mol_h = Chem.AddHs(Chem.MolFromSmiles(candidate.main_smiles))
         row.update(descriptors_for_candidate(mol_h, out.states, sections.get("sites"),
                                              sections.get("descriptors")))
@@ -282,7 +285,7 @@ def _expected_cost(candidate: Candidate) -> float:
 
 
 def _run_job(job: tuple[Candidate, dict | None], settings: ComputeSettings, store_path: str | None,
-             sections: dict[str, Any]) -> CandidateOutcome:
+             sections: dict[str, Any] | None) -> CandidateOutcome:
     return candidate_task(job[0], settings, store_path, job[1], sections)
 
 
@@ -294,18 +297,20 @@ def compute_campaign(
     workers: int | None = None,
     dask_address: str | None = None,
     progress: bool = True,
+    describe: bool = True,
 ) -> ComputeReport:
     """Read the campaign's candidates, compute them, write ``results/descriptors.csv``.
 
     Bad rows are written to ``results/input_problems.csv`` with row, field and reason;
-    they never stop the batch.
+    they never stop the batch. ``describe=False``: potentials only, no descriptors.
     """
     settings = campaign.compute
     path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates)
     candidates, problems = read_candidates(path, settings)
     sections = {"sites": campaign.section("sites"), "descriptors": campaign.section("descriptors")}
     outcomes, wall = compute_candidates(candidates, settings, campaign.store_path, workers=workers,
-                                        dask_address=dask_address, progress=progress, sections=sections)
+                                        dask_address=dask_address, progress=progress, sections=sections,
+                                        describe=describe)
     table = pd.DataFrame([o.row for o in outcomes])
     out = Path(out_path) if out_path else campaign.results_dir / "descriptors.csv"
     out.parent.mkdir(parents=True, exist_ok=True)

@@ -25,6 +25,14 @@ def _init_worker(threads: int) -> None:
         os.environ[var] = str(threads)
 
 
+def _start_method() -> str:
+    """'fork' when this process has not loaded the engine yet (cheap start, modules shared),
+    else 'spawn': an OpenMP runtime that has run in the parent must not be forked."""
+    if sys.platform.startswith("linux") and "tblite" not in sys.modules:
+        return "fork"
+    return "spawn"
+
+
 def plan_workers(workers: int, threads_per_worker: int) -> int:
     """Workers for the local pool so that workers x threads <= cores."""
     cores = os.cpu_count() or 1
@@ -71,7 +79,7 @@ def map_tasks(
         saved = {v: os.environ.get(v) for v in THREAD_VARIABLES}
         _init_worker(threads_per_worker)  # spawned children inherit these at start
         try:
-            ctx = multiprocessing.get_context("spawn")
+            ctx = multiprocessing.get_context(_start_method())
             with ProcessPoolExecutor(workers, mp_context=ctx, initializer=_init_worker,
                                      initargs=(threads_per_worker,)) as pool:
                 futures = [pool.submit(func, item, *args) for item in items]
