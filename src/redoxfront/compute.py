@@ -246,13 +246,20 @@ def compute_candidates(
     task_args = (settings, store_path if local else None, sections)
     if not items:
         return [outcomes[c.id] for c in candidates], time.perf_counter() - t0
-    with Store(store_path) as store:
+    # local workers wrote their states already; only cluster results are stored here.
+    # The parent holds no open store while the pool forks (SQLite handles must not cross fork).
+    store = None if local else Store(store_path)
+    try:
         for out in map_tasks(_run_job, items, args=task_args, workers=workers,
                              threads_per_worker=settings.threads_per_worker, dask_address=dask_address,
                              progress=progress, desc="redox states"):
-            for state, payload in out.payloads.items():
-                store.put(out.candidate.main_smiles, state, key_hash, payload)
+            if store is not None:
+                for state, payload in out.payloads.items():
+                    store.put(out.candidate.main_smiles, state, key_hash, payload)
             outcomes[out.candidate.id] = out
+    finally:
+        if store is not None:
+            store.close()
     return [outcomes[c.id] for c in candidates], time.perf_counter() - t0
 
 
