@@ -7,6 +7,7 @@ stderr and exit code 2; no tracebacks for user mistakes.
 from __future__ import annotations
 
 import functools
+import os
 import sys
 from pathlib import Path
 from typing import Any, Callable
@@ -35,6 +36,10 @@ def friendly_errors(func: Callable[..., Any]) -> Callable[..., Any]:
 @click.version_option(__version__, prog_name="redoxfront")
 def main() -> None:
     """Rank candidate redox-flow battery charge carriers before synthesis."""
+    # parallel over molecules, not threads: one BLAS/OpenMP thread per process unless the
+    # user says otherwise (set before numpy or the engine load; [compute] threads_per_worker)
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ.setdefault(var, "1")
 
 
 CAMPAIGN_ARG = click.argument(

@@ -25,10 +25,15 @@ def _init_worker(threads: int) -> None:
         os.environ[var] = str(threads)
 
 
-def _start_method() -> str:
-    """'fork' when this process has not loaded the engine yet (cheap start, modules shared),
-    else 'spawn': an OpenMP runtime that has run in the parent must not be forked."""
-    if sys.platform.startswith("linux") and "tblite" not in sys.modules:
+def _start_method(threads_per_worker: int) -> str:
+    """'fork' when cheap and safe, else 'spawn'.
+
+    Forking shares the parent's imported modules (fast start) but also its thread
+    settings: it is used only on Linux, while the engine's OpenMP runtime is not loaded
+    in this process, and when the thread variables already say ``threads_per_worker``.
+    """
+    same_threads = all(os.environ.get(v) == str(threads_per_worker) for v in THREAD_VARIABLES)
+    if sys.platform.startswith("linux") and "tblite" not in sys.modules and same_threads:
         return "fork"
     return "spawn"
 
@@ -76,10 +81,10 @@ def map_tasks(
                 yield func(item, *args)
                 bar.update(1)
             return
+        ctx = multiprocessing.get_context(_start_method(threads_per_worker))
         saved = {v: os.environ.get(v) for v in THREAD_VARIABLES}
         _init_worker(threads_per_worker)  # spawned children inherit these at start
         try:
-            ctx = multiprocessing.get_context(_start_method())
             with ProcessPoolExecutor(workers, mp_context=ctx, initializer=_init_worker,
                                      initargs=(threads_per_worker,)) as pool:
                 futures = [pool.submit(func, item, *args) for item in items]
