@@ -97,7 +97,7 @@ def test_rerun_recomputes_nothing_and_settings_change_invalidates(tmp_path):
 
 
 def test_killed_run_resumes_without_recomputing(tmp_path):
-    folder = _campaign(tmp_path, SMALL)
+    folder = _campaign(tmp_path, SMALL + ["CCOc1ccc(OCC)cc1", "COc1ccc(OC)c(C)c1C"])
     exe = Path(sys.executable).with_name("redoxfront")
     proc = subprocess.Popen([str(exe), "compute", str(folder), "--quiet"],
                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
@@ -116,6 +116,7 @@ def test_killed_run_resumes_without_recomputing(tmp_path):
         time.sleep(0.05)
     proc.send_signal(signal.SIGKILL)
     proc.wait()
+    assert proc.returncode == -signal.SIGKILL  # killed mid-run, not finished
     assert stored_before >= 3
     con = sqlite3.connect(store_file)
     states = con.execute("SELECT smiles, COUNT(*) FROM states GROUP BY smiles").fetchall()
@@ -123,11 +124,11 @@ def test_killed_run_resumes_without_recomputing(tmp_path):
     finished = {smiles for smiles, n in states if n == 2}
     assert finished  # at least one candidate was whole when the run was killed
     report = compute_campaign(load_campaign(folder), progress=False)
-    assert list(report.table[C.STATUS]) == ["ok"] * 4
+    assert list(report.table[C.STATUS]) == ["ok"] * 6
     for o in report.outcomes:  # finished before the kill: read back, no engine call
         assert (o.new_engine_calls == 0) == (o.candidate.main_smiles in finished)
     with Store(store_file) as s:
-        assert s.count() == 8
+        assert s.count() == 12
     # nothing stored twice, nothing lost
     con = sqlite3.connect(store_file)
     assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
