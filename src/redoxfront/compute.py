@@ -21,7 +21,7 @@ from rdkit.Chem.rdMolDescriptors import CalcNumRotatableBonds
 
 from redoxfront import columns as C
 from redoxfront.campaign import Campaign, ComputeSettings
-from redoxfront.errors import EngineError, InputError, RedoxfrontError
+from redoxfront.errors import EngineError, InputError
 from redoxfront.descriptors import descriptors_for_candidate
 from redoxfront.executors import map_tasks
 from redoxfront.optimize import optimize_geometry
@@ -339,5 +339,5 @@ def compute_campaign(
 
 __all__ = [
     "CandidateOutcome", "ComputeReport", "candidate_row", "compute_campaign", "compute_candidate",
-    "compute_candidates", "RedoxfrontError",
+    "compute_candidates", "candidate_task",
 ]
