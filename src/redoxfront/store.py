@@ -36,13 +36,28 @@ class Store:
     def __init__(self, path: str | Path, timeout_s: float = 120.0) -> None:
         self.path = Path(path)
         self.path.parent.mkdir(parents=True, exist_ok=True)
-        try:
-            self._con = sqlite3.connect(self.path, timeout=timeout_s, isolation_level=None)
-            self._con.execute("PRAGMA journal_mode=WAL")
-            self._con.execute("PRAGMA synchronous=NORMAL")
-            self._con.execute(_SCHEMA)
-        except sqlite3.DatabaseError as exc:
-            raise RedoxfrontError(f"cannot open store {self.path}: {exc}; move the file away to start afresh") from exc
+        deadline = time.monotonic() + timeout_s
+        con: sqlite3.Connection | None = None
+        while True:
+            try:
+                con = sqlite3.connect(self.path, timeout=timeout_s, isolation_level=None)
+                con.execute("PRAGMA journal_mode=WAL")
+                con.execute("PRAGMA synchronous=NORMAL")
+                con.execute(_SCHEMA)
+                self._con = con
+                break
+            except sqlite3.OperationalError as exc:
+                # another process is creating the file or switching it to WAL right now:
+                # SQLite may answer 'locked' without waiting, so wait here and try again
+                if ("locked" in str(exc) or "busy" in str(exc)) and time.monotonic() < deadline:
+                    if con is not None:
+                        con.close()
+                    time.sleep(0.05)
+                    continue
+                raise RedoxfrontError(f"cannot open store {self.path}: {exc}") from exc
+            except sqlite3.DatabaseError as exc:
+                raise RedoxfrontError(
+                    f"cannot open store {self.path}: {exc}; move the file away to start afresh") from exc
 
     def get(self, smiles: str, state: str, settings_hash: str) -> dict[str, Any] | None:
         """The stored payload, or None."""
