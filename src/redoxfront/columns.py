@@ -183,3 +183,21 @@ RATE_TABLE_COLUMNS: tuple[str, ...] = (
 """Columns of ``rates.csv`` in order. The target of the stability model is
 ``log10_k_per_h`` (decomposition of the charged species, 1/h); second-order fits
 also fill ``log10_k_l_per_mol_per_h`` (L/(mol h)) when c0 is known."""
+
+# ---- fade step: model comparison (results/fade_models.csv, redoxfront.fade) ----------
+FADE_CHOSEN = "chosen"
+"""True for the rate law chosen for the dataset (lowest AICc among the allowed ones)."""
+FADE_N_PARAMS = "n_params"
+"""Number of fitted parameters of the rate law (the variance is not counted)."""
+FADE_AICC = "aicc"
+"""Small-sample Akaike information criterion, dimensionless (Hurvich & Tsai 1989)."""
+FADE_DELTA_AICC = "delta_aicc"
+"""AICc minus the lowest AICc of the dataset, dimensionless."""
+FADE_AKAIKE_WEIGHT = "akaike_weight"
+"""exp(-delta/2) normalised over the models of the dataset, 0..1 (Burnham & Anderson 2002)."""
+FADE_RSS = "rss"
+"""Residual sum of squares, in squared units of the fitted signal (mAh^2 for capacity)."""
+FADE_Y0 = "y0"
+"""Fitted signal at the first point used, in the unit of the signal (mAh for capacity)."""
+FADE_Y_INF = "y_inf"
+"""Fitted plateau of ``first_order_plateau`` in the unit of the signal; empty for the others."""

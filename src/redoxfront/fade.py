@@ -32,7 +32,10 @@ import numpy as np
 import pandas as pd
 from scipy import optimize, stats
 
-from redoxfront.columns import CI_HIGH_SUFFIX, CI_LOW_SUFFIX, FADE_MODEL, K_FADE
+from redoxfront.columns import (
+    CI_HIGH_SUFFIX, CI_LOW_SUFFIX, FADE_AICC, FADE_AKAIKE_WEIGHT, FADE_CHOSEN, FADE_DELTA_AICC,
+    FADE_MODEL, FADE_N_PARAMS, FADE_RSS, FADE_Y0, FADE_Y_INF, K_FADE,
+)
 from redoxfront.errors import DataError, SettingsError
 from redoxfront.units import SECONDS_PER_DAY, SECONDS_PER_HOUR
 
@@ -273,11 +276,11 @@ class ModelChoice:
         w = {m: math.exp(-0.5 * (f.aicc_ - best)) for m, f in self.fits.items()}
         wsum = sum(w.values())
         for m, f in self.fits.items():
-            rows.append({FADE_MODEL: m, "chosen": m == self.chosen, "n_params": len(f.law.params),
-                         "aicc": f.aicc_, "delta_aicc": f.aicc_ - best,
-                         "akaike_weight": w[m] / wsum, "rss": f.rss_, K_FADE: f.params_["k"],
+            rows.append({FADE_MODEL: m, FADE_CHOSEN: m == self.chosen, FADE_N_PARAMS: len(f.law.params),
+                         FADE_AICC: f.aicc_, FADE_DELTA_AICC: f.aicc_ - best,
+                         FADE_AKAIKE_WEIGHT: w[m] / wsum, FADE_RSS: f.rss_, K_FADE: f.params_["k"],
                          K_FADE + CI_LOW_SUFFIX: f.k_ci_[0], K_FADE + CI_HIGH_SUFFIX: f.k_ci_[1],
-                         "y0": f.params_["y0"], "y_inf": f.params_.get("y_inf", math.nan)})
+                         FADE_Y0: f.params_["y0"], FADE_Y_INF: f.params_.get("y_inf", math.nan)})
         return pd.DataFrame(rows)
 
 
