@@ -20,7 +20,9 @@ import tempfile
 import time
 from pathlib import Path
 
-for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+from redoxfront.executors import THREAD_VARIABLES  # noqa: E402 (imports no numpy)
+
+for _var in THREAD_VARIABLES:
     os.environ.setdefault(_var, "1")
 
 import numpy as np  # noqa: E402

@@ -2,6 +2,8 @@
 
 import os
 
-for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+from redoxfront.executors import THREAD_VARIABLES  # imports no numpy: set before it loads
+
+for _var in THREAD_VARIABLES:
     os.environ.setdefault(_var, "1")
 os.environ.setdefault("MPLBACKEND", "Agg")

@@ -38,7 +38,9 @@ def main() -> None:
     """Rank candidate redox-flow battery charge carriers before synthesis."""
     # parallel over molecules, not threads: one BLAS/OpenMP thread per process unless the
     # user says otherwise (set before numpy or the engine load; [compute] threads_per_worker)
-    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+    from redoxfront.executors import THREAD_VARIABLES
+
+    for var in THREAD_VARIABLES:
         os.environ.setdefault(var, "1")
 
 
