@@ -17,7 +17,6 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from rdkit import Chem
-from rdkit.Chem.rdMolDescriptors import CalcNumRotatableBonds
 
 from redoxfront import columns as C
 from redoxfront.campaign import Campaign, ComputeSettings
@@ -285,10 +284,14 @@ def candidate_task(
     return replace(out, row=row)
 
 
-def _expected_cost(candidate: Candidate) -> float:
-    """Rough relative cost of a candidate: heavy atoms plus rotatable bonds, for scheduling."""
-    mol = Chem.MolFromSmiles(candidate.main_smiles)
-    return candidate.heavy_atoms + 3.0 * CalcNumRotatableBonds(mol)
+def _expected_cost(candidate: Candidate) -> int:
+    """Rough relative cost of a candidate, for scheduling: its atoms, hydrogens included.
+
+    On the benchmark set the atom count ranks the measured task times better
+    (Spearman 0.78) than heavy atoms plus rotatable bonds did (0.52); most of the
+    rest is the number of optimisation steps, which is not known in advance.
+    """
+    return Chem.AddHs(Chem.MolFromSmiles(candidate.main_smiles)).GetNumAtoms()
 
 
 def _run_job(job: tuple[Candidate, dict | None], settings: ComputeSettings, store_path: str | None,
