@@ -44,6 +44,10 @@ class CandidateOutcome:
     new_engine_seconds: float
     payloads: dict[str, dict[str, Any]] = field(default_factory=dict)
     """Freshly computed state payloads, for the caller to store (Dask path)."""
+    task_seconds: float = 0.0
+    """Wall time of this task in its worker, s."""
+    conformer_seconds: float = 0.0
+    """Of that, the RDKit conformer search (embedding, MMFF94, pruning), s."""
     row: dict[str, Any] = field(default_factory=dict)
     """The candidate's row of the descriptor table (filled by :func:`candidate_task`)."""
 
@@ -98,6 +102,8 @@ def compute_candidate(
     ``store_path``: write each state to this store as soon as it is done (local runs).
     ``stored``: payloads already known for this candidate (read by the caller).
     """
+    t_start = time.perf_counter()
+    conformer_s = 0.0
     key_hash = settings.result_hash()
     store = Store(store_path) if store_path else None
     known = dict(stored or {})
@@ -118,7 +124,9 @@ def compute_candidate(
                 vertical = plan[k + 1] if k + 1 < len(plan) else plan[k - 1]
                 try:
                     if k == 0:
+                        t_conf = time.perf_counter()
                         starts, embedded = generate_conformers(mol_h, settings.conformers, settings.seed)
+                        conformer_s = time.perf_counter() - t_conf
                     else:
                         starts = [c.positions_angstrom for c in results[plan[k - 1].name].conformers]
                     sr = _optimise_state(engine, numbers, starts, state, vertical, settings)
@@ -140,7 +148,8 @@ def compute_candidate(
             store.close()
     states = None if failure else CandidateStates(candidate.id, candidate.main_smiles, results)
     return CandidateOutcome(candidate, states, failure, embedded, engine.stats.calls,
-                            engine.stats.seconds, payloads)
+                            engine.stats.seconds, payloads, task_seconds=time.perf_counter() - t_start,
+                            conformer_seconds=conformer_s)
 
 
 def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[str, Any]:
@@ -274,6 +283,7 @@ def candidate_task(
     ``sections``: the campaign's raw ``sites`` and ``descriptors`` tables, or None for
     no descriptors (potentials only).
     """
+    t0 = time.perf_counter()
     out = compute_candidate(candidate, settings, store_path, stored)
     row = candidate_row(out, settings)
     if out.states is not None and sections is not None:
@@ -281,7 +291,7 @@ def candidate_task(
         row.update(descriptors_for_candidate(mol_h, out.states, sections.get("sites"),
                                              sections.get("descriptors")))
     row.update(candidate.extra)  # user columns last, unchanged
-    return replace(out, row=row)
+    return replace(out, row=row, task_seconds=time.perf_counter() - t0)
 
 
 def _expected_cost(candidate: Candidate) -> int:
