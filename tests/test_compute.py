@@ -13,7 +13,7 @@ import pytest
 
 from redoxfront import columns as C
 from redoxfront.campaign import ComputeSettings, ConformerSettings, load_campaign
-from redoxfront.compute import candidate_task, compute_campaign, compute_candidates
+from redoxfront.compute import candidate_task, compute_campaign, compute_candidate, compute_candidates
 from redoxfront.potentials import potential_v, reduction_free_energy_ev
 from redoxfront.store import Store
 from redoxfront.structures import parse_candidate
@@ -181,3 +181,19 @@ def test_engine_failure_is_reported_and_batch_goes_on(tmp_path):
     assert "number of electrons" in status[0]
     assert status[1] == "ok"
     assert compute_campaign(camp, progress=False).new_engine_calls == 0  # failures are stored too
+
+
+def test_charged_state_starts_from_the_vertical_point_already_computed(tmp_path):
+    # the vertical point of the discharged state (charged state at the discharged geometry) is
+    # the first point of the charged-state optimisation: an uninterrupted run reuses it, a run
+    # resumed after the discharged state computes it again, and both reach the same minimum
+    settings = ComputeSettings(role="catholyte", conformers=ConformerSettings(n_generate=4, refine_lowest=2))
+    cand = parse_candidate({"id": "dmb", "smiles": "COc1ccc(OC)cc1"}, 2, settings)
+    whole = compute_candidate(cand, settings, str(tmp_path / "a.sqlite"))
+    resumed = compute_candidate(cand, settings, None, {"discharged": whole.payloads["discharged"]})
+    a = whole.states.states["charged"].conformers
+    b = resumed.states.states["charged"].conformers
+    assert len(a) == len(b) == 2
+    for x, y in zip(a, b):
+        assert x.energy_eh == pytest.approx(y.energy_eh, abs=1e-7)
+        assert y.gradient_calls == x.gradient_calls + 1

@@ -25,11 +25,11 @@ from redoxfront.descriptors import descriptors_for_candidate
 from redoxfront.executors import map_tasks
 from redoxfront.optimize import optimize_geometry
 from redoxfront.potentials import potential_v, reduction_free_energy_ev
-from redoxfront.records import CandidateStates, ConformerResult, StateResult
+from redoxfront.records import POSITION_DECIMALS, CandidateStates, ConformerResult, StateResult
 from redoxfront.store import Store
 from redoxfront.structures import Candidate, RedoxState, generate_conformers, read_candidates, redox_states
 from redoxfront.units import HARTREE_EV
-from redoxfront.xtb import Engine, make_engine
+from redoxfront.xtb import Engine, EngineResult, make_engine
 
 
 @dataclass(frozen=True)
@@ -59,24 +59,36 @@ def _optimise_state(
     state: RedoxState,
     vertical: RedoxState,
     settings: ComputeSettings,
-) -> StateResult:
-    """Optimise one redox state from each start geometry; add the vertical energy of ``vertical``."""
+    known_points: list[tuple[RedoxState, np.ndarray, EngineResult]] | None = None,
+) -> tuple[StateResult, list[tuple[RedoxState, np.ndarray, EngineResult]]]:
+    """Optimise one redox state from each start geometry; add the vertical energy of ``vertical``.
+
+    ``known_points``: engine results already computed (state, geometry, result), such as
+    the previous state's vertical points; one at a start geometry in this state is used
+    as the optimisation's first point instead of computing it again. Returns the state
+    and its own vertical points (for the next state).
+    """
     t0 = time.perf_counter()
     s0 = engine.stats.seconds
     confs = []
+    verticals = []
     for i, start in enumerate(starts):
         spin = settings.spin_polarized and state.uhf > 0
+        initial = next((r for st, xyz, r in known_points or ()
+                        if st == state and np.array_equal(xyz, start)), None)
         opt = optimize_geometry(engine, numbers, start, state.charge, state.uhf, settings.optimizer,
-                                spin_polarized=spin)
-        vert = engine.compute(numbers, opt.positions_angstrom, vertical.charge, vertical.uhf,
+                                spin_polarized=spin, initial=initial)
+        xyz = opt.positions_angstrom.round(POSITION_DECIMALS)  # the geometry as stored
+        vert = engine.compute(numbers, xyz, vertical.charge, vertical.uhf,
                               spin_polarized=settings.spin_polarized and vertical.uhf > 0)
+        verticals.append((vertical, xyz, vert))
         r = opt.result
         spin_density = r.spin_populations
         if state.uhf > 0 and spin_density is None:  # spin density always from a spin-polarised point
-            spin_density = engine.compute(numbers, opt.positions_angstrom, state.charge, state.uhf,
+            spin_density = engine.compute(numbers, xyz, state.charge, state.uhf,
                                           spin_polarized=True).spin_populations
         confs.append(ConformerResult(
-            positions_angstrom=opt.positions_angstrom,
+            positions_angstrom=xyz,
             energy_eh=r.energy_eh,
             charges=r.charges,
             homo_eh=r.homo_eh,
@@ -91,7 +103,7 @@ def _optimise_state(
     return StateResult(
         state=state.name, charge=state.charge, uhf=state.uhf, conformers=tuple(confs),
         wall_time_s=time.perf_counter() - t0, engine_time_s=engine.stats.seconds - s0,
-    )
+    ), verticals
 
 
 def compute_candidate(
@@ -114,6 +126,7 @@ def compute_candidate(
     numbers = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
     plan = redox_states(mol_h, candidate.role, candidate.n_electrons)
     results: dict[str, StateResult] = {}
+    verticals: list = []  # the last computed state's vertical points: the next state starts there
     failure = None
     try:
         for k, state in enumerate(plan):
@@ -129,7 +142,8 @@ def compute_candidate(
                         conformer_s = time.perf_counter() - t_conf
                     else:
                         starts = [c.positions_angstrom for c in results[plan[k - 1].name].conformers]
-                    sr = _optimise_state(engine, numbers, starts, state, vertical, settings)
+                    sr, verticals = _optimise_state(engine, numbers, starts, state, vertical, settings,
+                                                    verticals)
                     payload = sr.to_json()
                     payload["conformers_embedded"] = embedded
                 except (EngineError, InputError) as exc:

@@ -221,20 +221,28 @@ def optimize_geometry(
     settings: OptimizerSettings = OptimizerSettings(),
     *,
     spin_polarized: bool = False,
+    initial: EngineResult | None = None,
 ) -> OptimizationResult:
     """Minimise the engine energy from ``positions_angstrom`` by trust-radius RFO.
 
     Steps are taken in approximate normal coordinates of the Lindh model Hessian,
     updated by BFGS. Convergence (Eh, bohr): :func:`is_converged` with the
-    :class:`~redoxfront.campaign.OptimizerSettings` thresholds.
+    :class:`~redoxfront.campaign.OptimizerSettings` thresholds. ``initial``: the
+    engine result at the start geometry when it is already known (same state and
+    settings); it is used instead of a first call and is not counted in
+    ``gradient_calls``, which counts the engine calls this optimisation made.
     """
     numbers = np.asarray(numbers)
     x = np.asarray(positions_angstrom, dtype=float).ravel() * ANGSTROM_BOHR
     modes, w = internal_modes(numbers, x, lindh_hessian(numbers, x.reshape(-1, 3)))
     hq = np.diag(w)
     trust = settings.trust_radius_bohr
-    res = engine.compute(numbers, x.reshape(-1, 3) * BOHR_ANGSTROM, charge, uhf, spin_polarized=spin_polarized)
-    calls = 1
+    if initial is None:
+        res = engine.compute(numbers, x.reshape(-1, 3) * BOHR_ANGSTROM, charge, uhf,
+                             spin_polarized=spin_polarized)
+        calls = 1
+    else:
+        res, calls = initial, 0
     converged = False
     it = 0
     last_change: float | None = None

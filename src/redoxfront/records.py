@@ -15,6 +15,8 @@ import numpy as np
 STATE_DISCHARGED = "discharged"
 STATE_INTERMEDIATE = "intermediate"
 STATE_CHARGED = "charged"
+POSITION_DECIMALS = 6
+"""Stored geometries are rounded to 1e-6 Angstrom (far below any geometric effect)."""
 
 
 @dataclass(frozen=True)
@@ -51,7 +53,7 @@ class ConformerResult:
 
     def to_json(self) -> dict[str, Any]:
         return {
-            "positions_angstrom": np.asarray(self.positions_angstrom).round(6).tolist(),
+            "positions_angstrom": np.asarray(self.positions_angstrom).round(POSITION_DECIMALS).tolist(),
             "energy_eh": self.energy_eh,
             "charges": np.asarray(self.charges).round(6).tolist(),
             "homo_eh": self.homo_eh,
