@@ -18,6 +18,7 @@ from typing import Any
 
 import numpy as np
 import scipy.linalg
+import scipy.linalg.lapack
 
 from redoxfront.campaign import OptimizerSettings
 from redoxfront.units import ANGSTROM_BOHR, BOHR_ANGSTROM
@@ -173,10 +174,14 @@ def rfo_step(hessian: np.ndarray, gradient: np.ndarray) -> np.ndarray:
     per-step linear algebra of the optimiser (Banerjee et al., J. Phys. Chem. 1985, 89, 52).
     """
     m = len(gradient)
-    aug = np.zeros((m + 1, m + 1))
+    aug = np.empty((m + 1, m + 1))
     aug[:m, :m] = hessian
     aug[:m, m] = aug[m, :m] = gradient
-    _, vec = scipy.linalg.eigh(aug, subset_by_index=[0, 0], driver="evr", check_finite=False)
+    aug[m, m] = 0.0
+    # LAPACK dsyevr directly (scipy.linalg.eigh adds a workspace query per call)
+    _, vec, _, _, info = scipy.linalg.lapack.dsyevr(aug, range="I", il=1, iu=1, overwrite_a=1)
+    if info != 0:
+        raise np.linalg.LinAlgError(f"dsyevr failed in the RFO step (info {info})")
     v = vec[:, 0]
     if abs(v[m]) < 1e-10:  # step would be unbounded: fall back to steepest descent
         return -gradient
