@@ -197,3 +197,21 @@ def test_charged_state_starts_from_the_vertical_point_already_computed(tmp_path)
     for x, y in zip(a, b):
         assert x.energy_eh == pytest.approx(y.energy_eh, abs=1e-7)
         assert y.gradient_calls == x.gradient_calls + 1
+
+
+def test_two_electron_couple_has_both_vertical_energies_and_a_sane_reorganisation_energy():
+    # n = 2: the intermediate state carries the vertical energies of both of its neighbours, so
+    # the four-point lambda of the first couple uses E(discharged at the intermediate geometry),
+    # never the second couple's energy; Nelsen et al., J. Am. Chem. Soc. 1987, 109, 677: each
+    # half is a relaxation energy, so the total is small and non-negative
+    settings = ComputeSettings(role="anolyte", conformers=FAST)
+    cand = parse_candidate({"id": "bq", "smiles": "O=C1C=CC(=O)C=C1", "n_electrons": 2}, 2, settings)
+    out = candidate_task(cand, settings, None, None, {})
+    mid = out.states.states["intermediate"].lowest
+    assert set(mid.vertical_energies_eh) == {"discharged", "charged"}
+    assert set(out.states.states["discharged"].lowest.vertical_energies_eh) == {"intermediate"}
+    assert set(out.states.states["charged"].lowest.vertical_energies_eh) == {"intermediate"}
+    lam = out.row[C.REORGANISATION_ENERGY]
+    # from memory: quinone/semiquinone inner-sphere lambda is a few tenths of an eV
+    assert 0.0 <= lam < 1.0
+    assert "negative reorganisation energy" not in out.row[C.DESCRIPTOR_NOTES]

@@ -92,13 +92,13 @@ def _states(with_spin: bool = True) -> tuple[Chem.Mol, CandidateStates]:
     spin = np.zeros(n)
     spin[[2, 5]] = 0.5
 
-    def conf(k: int, e: float, vert: float, charge: float, s: np.ndarray | None) -> ConformerResult:
+    def conf(k: int, e: float, vert: dict[str, float], charge: float, s: np.ndarray | None) -> ConformerResult:
         return ConformerResult(mol.GetConformer(k).GetPositions(), e, np.full(n, charge),
                                -0.40, -0.10, np.array([0.2, 0.0, 0.0]), 10, True, k, vert, s)
 
-    dis = StateResult("discharged", 0, 0, tuple(conf(k, -40.0 + 0.001 * k, -39.69, 0.0, None)
+    dis = StateResult("discharged", 0, 0, tuple(conf(k, -40.0 + 0.001 * k, {"charged": -39.69}, 0.0, None)
                                                   for k in range(3)))
-    chg = StateResult("charged", 1, 1, tuple(conf(k, -39.70 + 0.01 * k, -39.99, 0.1,
+    chg = StateResult("charged", 1, 1, tuple(conf(k, -39.70 + 0.01 * k, {"discharged": -39.99}, 0.1,
                                                   spin if with_spin else None) for k in range(3)))
     return mol, CandidateStates("c1", SMILES, {"discharged": dis, "charged": chg})
 

@@ -76,7 +76,7 @@ def _energy_gradient(z: np.ndarray, charge: int, uhf: int):
 
 
 def _optimised_state(z: np.ndarray, x_angstrom: np.ndarray, charge: int, uhf: int,
-                     other: tuple[int, int], name: str) -> StateResult:
+                     other: tuple[int, int], name: str, other_name: str) -> StateResult:
     fg = _energy_gradient(z, charge, uhf)
     opt = minimize(fg, x_angstrom.ravel() * ANGSTROM_BOHR, jac=True, method="L-BFGS-B",
                    options={"gtol": 1e-6, "maxiter": 500})
@@ -85,15 +85,15 @@ def _optimised_state(z: np.ndarray, x_angstrom: np.ndarray, charge: int, uhf: in
         positions_angstrom=opt.x.reshape(-1, 3) / ANGSTROM_BOHR, energy_eh=float(opt.fun),
         charges=np.zeros(len(z)), homo_eh=0.0, lumo_eh=0.0, dipole_au=np.zeros(3),
         gradient_calls=int(opt.nfev), converged=bool(opt.success), source_conformer=0,
-        vertical_energy_eh=vertical,
+        vertical_energies_eh={other_name: vertical},
     )
     return StateResult(name, charge, uhf, (conf,))
 
 
 def test_four_point_reorganisation_energy_is_positive_for_ethylene_cation() -> None:
     z, x = _mmff("C=C")
-    neutral = _optimised_state(z, x, 0, 0, (1, 1), "discharged")
-    cation = _optimised_state(z, x, 1, 1, (0, 0), "charged")
+    neutral = _optimised_state(z, x, 0, 0, (1, 1), "discharged", "charged")
+    cation = _optimised_state(z, x, 1, 1, (0, 0), "charged", "discharged")
     lam = reorganisation_energy(neutral, cation)
     assert lam is not None
     # Nelsen et al., J. Am. Chem. Soc. 1987, 109, 677: each half is a relaxation energy,
@@ -106,17 +106,20 @@ def test_four_point_reorganisation_energy_is_positive_for_ethylene_cation() -> N
 
 
 def test_reorganisation_energy_pairs_by_source_conformer() -> None:
-    def c(e: float, vert: float | None, src: int) -> ConformerResult:
+    def c(e: float, vert: dict[str, float], src: int) -> ConformerResult:
         return ConformerResult(np.zeros((1, 3)), e, np.zeros(1), 0.0, 0.0, np.zeros(3), 1, True,
                                src, vert)
 
-    a = StateResult("discharged", 0, 0, (c(-1.000, -0.700, 0), c(-1.010, -0.690, 1)))
-    b = StateResult("charged", 1, 1, (c(-0.705, -1.004, 1), c(-0.720, -0.990, 0)))
+    a = StateResult("discharged", 0, 0, (c(-1.000, {"charged": -0.700}, 0), c(-1.010, {"charged": -0.690}, 1)))
+    b = StateResult("charged", 1, 1, (c(-0.705, {"discharged": -1.004}, 1), c(-0.720, {"discharged": -0.990}, 0)))
     lam = reorganisation_energy(a, b)
     # lowest a is conformer 1; its partner in b relaxed from the same start (src 1):
     # (-0.690 + 0.705) + (-1.004 + 1.010) = 0.021 Eh
     assert lam is not None and lam.source_conformer == 1
     assert lam.total_ev == pytest.approx(0.021 * HARTREE_EV, abs=1e-9)
-    no_vertical = StateResult("charged", 1, 1, (c(-0.705, None, 1),))
+    no_vertical = StateResult("charged", 1, 1, (c(-0.705, {}, 1),))
     assert reorganisation_energy(a, no_vertical) is None
+    # a vertical energy of some other state (here a second reduction) is not this couple's
+    wrong_state = StateResult("charged", 1, 1, (c(-0.705, {"charged2": -1.004}, 1),))
+    assert reorganisation_energy(a, wrong_state) is None
     assert E_BOHR_DEBYE == pytest.approx(2.5417464, abs=1e-6)  # CODATA 2018 derived

@@ -189,7 +189,7 @@ class ComputeSettings:
             "engine": self.engine,
             "conformers": dataclasses.asdict(self.conformers),
             "optimizer": dataclasses.asdict(self.optimizer),
-            "schema": 1,
+            "schema": 2,  # 2: vertical energies of both neighbouring states
         }
         text = json.dumps(keep, sort_keys=True)
         return hashlib.sha256(text.encode()).hexdigest()[:16]

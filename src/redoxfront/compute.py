@@ -57,11 +57,11 @@ def _optimise_state(
     numbers: np.ndarray,
     starts: list[np.ndarray],
     state: RedoxState,
-    vertical: RedoxState,
+    neighbours: list[RedoxState],
     settings: ComputeSettings,
     known_points: list[tuple[RedoxState, np.ndarray, EngineResult]] | None = None,
 ) -> tuple[StateResult, list[tuple[RedoxState, np.ndarray, EngineResult]]]:
-    """Optimise one redox state from each start geometry; add the vertical energy of ``vertical``.
+    """Optimise one redox state from each start geometry; add the vertical energies of ``neighbours``.
 
     ``known_points``: engine results already computed (state, geometry, result), such as
     the previous state's vertical points; one at a start geometry in this state is used
@@ -79,9 +79,12 @@ def _optimise_state(
         opt = optimize_geometry(engine, numbers, start, state.charge, state.uhf, settings.optimizer,
                                 spin_polarized=spin, initial=initial)
         xyz = opt.positions_angstrom.round(POSITION_DECIMALS)  # the geometry as stored
-        vert = engine.compute(numbers, xyz, vertical.charge, vertical.uhf,
-                              spin_polarized=settings.spin_polarized and vertical.uhf > 0)
-        verticals.append((vertical, xyz, vert))
+        vertical_eh = {}
+        for other in neighbours:
+            vert = engine.compute(numbers, xyz, other.charge, other.uhf,
+                                  spin_polarized=settings.spin_polarized and other.uhf > 0)
+            verticals.append((other, xyz, vert))
+            vertical_eh[other.name] = vert.energy_eh
         r = opt.result
         spin_density = r.spin_populations
         if state.uhf > 0 and spin_density is None:  # spin density always from a spin-polarised point
@@ -97,7 +100,7 @@ def _optimise_state(
             gradient_calls=opt.gradient_calls,
             converged=opt.converged,
             source_conformer=i,
-            vertical_energy_eh=vert.energy_eh,
+            vertical_energies_eh=vertical_eh,
             spin_density=spin_density,
         ))
     return StateResult(
@@ -134,7 +137,7 @@ def compute_candidate(
             if payload is None and store is not None:
                 payload = store.get(candidate.main_smiles, state.name, key_hash)
             if payload is None:
-                vertical = plan[k + 1] if k + 1 < len(plan) else plan[k - 1]
+                neighbours = [plan[j] for j in (k + 1, k - 1) if 0 <= j < len(plan)]
                 try:
                     if k == 0:
                         t_conf = time.perf_counter()
@@ -142,7 +145,7 @@ def compute_candidate(
                         conformer_s = time.perf_counter() - t_conf
                     else:
                         starts = [c.positions_angstrom for c in results[plan[k - 1].name].conformers]
-                    sr, verticals = _optimise_state(engine, numbers, starts, state, vertical, settings,
+                    sr, verticals = _optimise_state(engine, numbers, starts, state, neighbours, settings,
                                                     verticals)
                     payload = sr.to_json()
                     payload["conformers_embedded"] = embedded
@@ -200,7 +203,7 @@ def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[
     row["multiplicity_charged"] = last.multiplicity
     row["adiabatic_change_on_charging_ev"] = (last.lowest.energy_eh - first.lowest.energy_eh) * HARTREE_EV
     low = first.lowest
-    row["vertical_change_on_charging_ev"] = (low.vertical_energy_eh - low.energy_eh) * HARTREE_EV
+    row["vertical_change_on_charging_ev"] = (low.vertical_energies_eh[states[1].state] - low.energy_eh) * HARTREE_EV
     for name, st in (("discharged", first), ("charged", last)):
         c = st.lowest
         row[f"homo_{name}_ev"] = c.homo_eh * HARTREE_EV

@@ -33,8 +33,9 @@ class ConformerResult:
     dipole_au : dipole vector, e*bohr.
     gradient_calls : engine gradient evaluations spent optimising it.
     converged : optimiser reached its criteria.
-    vertical_energy_eh : energy of the *other* state at this geometry (same charge/spin
-        as that state), Eh; used for vertical energies and reorganisation energies.
+    vertical_energies_eh : energies of the neighbouring redox states at this geometry
+        (their charge and spin), Eh, keyed by state name: the next state, and the previous
+        one when there is one; used for vertical energies and reorganisation energies.
     spin_density : per-atom spin population (alpha - beta), only for open shells when
         spin-polarised calculations are on; otherwise None.
     """
@@ -48,7 +49,7 @@ class ConformerResult:
     gradient_calls: int
     converged: bool
     source_conformer: int
-    vertical_energy_eh: float | None = None
+    vertical_energies_eh: dict[str, float] = field(default_factory=dict)
     spin_density: np.ndarray | None = None
 
     def to_json(self) -> dict[str, Any]:
@@ -62,7 +63,7 @@ class ConformerResult:
             "gradient_calls": self.gradient_calls,
             "converged": self.converged,
             "source_conformer": self.source_conformer,
-            "vertical_energy_eh": self.vertical_energy_eh,
+            "vertical_energies_eh": dict(self.vertical_energies_eh),
             "spin_density": None
             if self.spin_density is None
             else np.asarray(self.spin_density).round(6).tolist(),
@@ -80,7 +81,7 @@ class ConformerResult:
             gradient_calls=int(d["gradient_calls"]),
             converged=bool(d["converged"]),
             source_conformer=int(d["source_conformer"]),
-            vertical_energy_eh=d.get("vertical_energy_eh"),
+            vertical_energies_eh={k: float(v) for k, v in d.get("vertical_energies_eh", {}).items()},
             spin_density=None
             if d.get("spin_density") is None
             else np.asarray(d["spin_density"], dtype=float),

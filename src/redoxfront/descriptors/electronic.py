@@ -91,9 +91,9 @@ def reorganisation_energy(a: StateResult, b: StateResult) -> ReorganisationEnerg
     pairs = {c.source_conformer: c for c in b.conformers}
     for ca in sorted(a.conformers, key=lambda c: c.energy_eh):
         cb = pairs.get(ca.source_conformer)
-        if cb is None or ca.vertical_energy_eh is None or cb.vertical_energy_eh is None:
+        if cb is None or b.state not in ca.vertical_energies_eh or a.state not in cb.vertical_energies_eh:
             continue
-        a_to_b = (ca.vertical_energy_eh - cb.energy_eh) * HARTREE_EV
-        b_to_a = (cb.vertical_energy_eh - ca.energy_eh) * HARTREE_EV
+        a_to_b = (ca.vertical_energies_eh[b.state] - cb.energy_eh) * HARTREE_EV
+        b_to_a = (cb.vertical_energies_eh[a.state] - ca.energy_eh) * HARTREE_EV
         return ReorganisationEnergy(a_to_b + b_to_a, a_to_b, b_to_a, ca.source_conformer)
     return None
