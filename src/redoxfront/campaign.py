@@ -238,7 +238,7 @@ class Campaign:
 
 
 OWNED_SECTIONS: tuple[str, ...] = (
-    "calibration", "model", "fade", "cell", "ranking", "sites", "descriptors", "report",
+    "calibration", "model", "fade", "cell", "ranking", "sites", "descriptors", "report", "library",
 )
 
 

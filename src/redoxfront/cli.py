@@ -52,6 +52,22 @@ CAMPAIGN_ARG = click.argument(
 # ---- commands are added below, one per library function ----------------------
 
 
+@main.command("library")
+@CAMPAIGN_ARG
+@friendly_errors
+def library_command(campaign: Path) -> None:
+    """Build a virtual library from the campaign's [library] scaffold and substituent lists."""
+    from redoxfront.campaign import load_campaign
+    from redoxfront.library import library_for_campaign
+
+    out, combos, distinct, problems = library_for_campaign(load_campaign(campaign))
+    for _, p in problems.iterrows():
+        click.echo(f"left out {p['id']}: {p['reason']}", err=True)
+    click.echo(f"{combos} combinations, {distinct} distinct molecules "
+               f"({combos - distinct - len(problems)} repeats by symmetry, {len(problems)} left out); "
+               f"written to {out}")
+
+
 @main.command("compute")
 @CAMPAIGN_ARG
 @click.option("--candidates", type=click.Path(exists=True, path_type=Path), default=None,

@@ -1,0 +1,150 @@
+"""A virtual library: one scaffold with numbered attachment points x substituent lists.
+
+The scaffold is a SMILES with attachment points written as numbered dummy atoms,
+``[*:1]``, ``[*:2]``, ...; each site has a list of substituents, each a SMILES with one
+dummy atom at the atom that bonds to the scaffold (``[*]C(C)(C)C``), or without one, in
+which case its first atom bonds (``OC`` is methoxy). ``H`` leaves the site unsubstituted.
+Every combination is joined with RDKit's ``molzip``; combinations that give the same
+molecule (symmetric scaffolds) are kept once, under the first combination's id. The
+result is a candidates table (``id``, ``smiles`` and one ``substituent_<site>`` column per
+site, which travel on as user columns) that ``redoxfront compute`` reads like any other.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+from rdkit import Chem, RDLogger
+
+from redoxfront.campaign import Campaign, section_from_mapping
+from redoxfront.errors import SettingsError
+
+HYDROGEN = "H"
+"""Substituent text for an unsubstituted site."""
+
+
+@dataclass(frozen=True)
+class LibrarySettings:
+    """The ``[library]`` section of a campaign."""
+
+    scaffold: str = ""
+    """SMILES with numbered attachment points [*:1], [*:2], ..."""
+    substituents: dict[str, tuple[str, ...]] = field(default_factory=dict)
+    """Per site number (as text, the TOML key), the substituent SMILES to try there."""
+    id_prefix: str = "lib"
+    output: str = "inputs/library.csv"
+    """Where the candidates table is written, relative to the campaign folder."""
+
+
+def _parse(smiles: str) -> Chem.Mol | None:
+    params = Chem.SmilesParserParams()
+    params.removeHs = False  # keeps the H of '[*:1][H]'
+    return Chem.MolFromSmiles(smiles, params)
+
+
+def attachment_points(scaffold: str) -> list[int]:
+    """Site numbers of the scaffold's attachment points, sorted; errors name the problem."""
+    mol = _parse(scaffold)
+    if mol is None:
+        raise SettingsError(f"[library] scaffold '{scaffold}' is not a valid SMILES")
+    sites = [a.GetAtomMapNum() for a in mol.GetAtoms() if a.GetAtomicNum() == 0]
+    if not sites:
+        raise SettingsError("[library] scaffold has no attachment points; write them as [*:1], [*:2], ...")
+    if 0 in sites:
+        raise SettingsError("[library] scaffold: every attachment point needs a number, as in [*:1]")
+    if len(set(sites)) != len(sites):
+        raise SettingsError("[library] scaffold: an attachment point number is used twice")
+    return sorted(sites)
+
+
+def substituent_fragment(text: str, site: int) -> str:
+    """The substituent as a SMILES fragment whose dummy atom carries ``site`` as map number."""
+    text = text.strip()
+    where = f"[library.substituents] site {site}, '{text}'"
+    if text == HYDROGEN:
+        return f"[*:{site}][H]"
+    mol = _parse(text)
+    if mol is None:
+        raise SettingsError(f"{where}: not a valid SMILES")
+    dummies = [a for a in mol.GetAtoms() if a.GetAtomicNum() == 0]
+    if not dummies:
+        mol = _parse("*" + text)
+        if mol is None:
+            raise SettingsError(f"{where}: cannot bond its first atom to the scaffold; mark it with [*]")
+        dummies = [a for a in mol.GetAtoms() if a.GetAtomicNum() == 0]
+    if len(dummies) != 1:
+        raise SettingsError(f"{where}: needs exactly one attachment point [*], found {len(dummies)}")
+    dummies[0].SetAtomMapNum(site)
+    return Chem.MolToSmiles(mol)
+
+
+def build_library(settings: LibrarySettings) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Every scaffold x substituent combination, one row per distinct molecule.
+
+    Returns (candidates, problems): candidates has ``id``, ``smiles`` and
+    ``substituent_<site>`` columns; problems lists combinations RDKit could not join or
+    sanitise (``id``, ``reason``), which are left out while the rest goes on.
+    """
+    sites = attachment_points(settings.scaffold)
+    given = {str(k): v for k, v in settings.substituents.items()}
+    missing = [s for s in sites if str(s) not in given]
+    extra = sorted(set(given) - {str(s) for s in sites})
+    if missing:
+        raise SettingsError(f"[library.substituents] no list for site {missing[0]}; "
+                            f"the scaffold has sites {', '.join(map(str, sites))}")
+    if extra:
+        raise SettingsError(f"[library.substituents] site {extra[0]} is not an attachment point of the scaffold")
+    choices = []
+    for s in sites:
+        texts = given[str(s)]
+        if isinstance(texts, str) or not texts:
+            raise SettingsError(f"[library.substituents] site {s}: give a list of substituents, e.g. [\"H\", \"C\"]")
+        choices.append([(t.strip(), substituent_fragment(t, s)) for t in texts])
+    total = 1
+    for c in choices:
+        total *= len(c)
+    width = len(str(total))
+    rows, problems, seen = [], [], {}
+    RDLogger.DisableLog("rdApp.*")  # molzip warns about H next to dummies; failures are reported below
+    try:
+        for k, combo in enumerate(itertools.product(*choices), start=1):
+            cid = f"{settings.id_prefix}-{k:0{width}d}"
+            labels = {f"substituent_{s}": text for s, (text, _) in zip(sites, combo)}
+            joined = ".".join([settings.scaffold] + [frag for _, frag in combo])
+            mol = _parse(joined)
+            try:
+                product = Chem.RemoveHs(Chem.molzip(mol))
+                Chem.SanitizeMol(product)
+                smiles = Chem.MolToSmiles(product)
+            except Exception as exc:  # RDKit raises several types for valence and bonding errors
+                problems.append({"id": cid, **labels, "reason": f"cannot join: {exc}"})
+                continue
+            if smiles in seen:
+                continue  # the same molecule from a symmetry-equivalent combination
+            seen[smiles] = cid
+            rows.append({"id": cid, "smiles": smiles, **labels})
+    finally:
+        RDLogger.EnableLog("rdApp.*")
+    return pd.DataFrame(rows), pd.DataFrame(problems, columns=["id", *[f"substituent_{s}" for s in sites], "reason"])
+
+
+def library_for_campaign(campaign: Campaign) -> tuple[Path, int, int, pd.DataFrame]:
+    """Build the campaign's ``[library]`` and write it; returns (path, combinations, distinct, problems)."""
+    settings = section_from_mapping(LibrarySettings, campaign.section("library"), "library")
+    if not settings.scaffold:
+        raise SettingsError("[library] scaffold is missing; e.g. scaffold = \"COc1cc([*:1])c(OC)cc1[*:2]\"")
+    table, problems = build_library(settings)
+    combos = 1
+    for v in settings.substituents.values():
+        combos *= len(v)
+    out = campaign.path(settings.output)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    table.to_csv(out, index=False)
+    return out, combos, len(table), problems
+
+
+__all__ = ["HYDROGEN", "LibrarySettings", "attachment_points", "build_library", "library_for_campaign",
+           "substituent_fragment"]

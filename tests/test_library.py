@@ -1,0 +1,87 @@
+"""Virtual library: scaffold x substituents, symmetry repeats, per-combination problems."""
+
+import re
+from math import comb
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+from rdkit import Chem
+from rdkit.Chem.rdMolDescriptors import CalcMolFormula
+
+from redoxfront.campaign import ComputeSettings
+from redoxfront.cli import main
+from redoxfront.errors import SettingsError
+from redoxfront.library import LibrarySettings, attachment_points, build_library
+from redoxfront.structures import read_candidates
+
+SUBS = ["H", "C", "C(C)(C)C", "[*]OC", "C(F)(F)F"]
+
+
+def test_equivalent_sites_give_combinations_with_repetition():
+    # 2,5-positions of 1,4-dimethoxybenzene are related by the ring's C2 axis: k substituents
+    # on two equivalent sites give C(k + 1, 2) distinct molecules (combinations with
+    # repetition; common combinatorics, no source)
+    lib = LibrarySettings(scaffold="COc1cc([*:1])c(OC)cc1[*:2]", substituents={"1": SUBS, "2": SUBS})
+    table, problems = build_library(lib)
+    assert len(table) == comb(len(SUBS) + 1, 2) == 15
+    assert problems.empty
+    assert table["smiles"].is_unique and table["id"].is_unique
+    # the ortho and para positions of anisole are not equivalent: every pair is its own molecule
+    lib2 = LibrarySettings(scaffold="COc1ccc([*:1])cc1[*:2]", substituents={"1": SUBS, "2": SUBS})
+    assert len(build_library(lib2)[0]) == len(SUBS) ** 2
+
+
+def test_products_are_the_expected_molecules():
+    lib = LibrarySettings(scaffold="COc1cc([*:1])c(OC)cc1[*:2]",
+                          substituents={"1": ["H", "C(C)(C)C"], "2": ["C(C)(C)C"]}, id_prefix="dmb")
+    table, _ = build_library(lib)
+    row = table.set_index("substituent_1").loc["C(C)(C)C"]
+    # 2,5-di-tert-butyl-1,4-dimethoxybenzene, C16H26O2 (formula from the structure)
+    assert row["smiles"] == Chem.CanonSmiles("COc1cc(C(C)(C)C)c(OC)cc1C(C)(C)C")
+    assert CalcMolFormula(Chem.MolFromSmiles(row["smiles"])) == "C16H26O2"
+    h = table.set_index("substituent_1").loc["H"]
+    assert h["smiles"] == Chem.CanonSmiles("COc1ccc(OC)c(C(C)(C)C)c1")
+    assert list(table["id"]) == ["dmb-1", "dmb-2"]
+
+
+def test_a_combination_that_cannot_be_joined_is_reported_and_the_rest_goes_on():
+    lib = LibrarySettings(scaffold="c1ccccc1[*:1]", substituents={"1": ["[*]=O", "C"]})
+    table, problems = build_library(lib)
+    assert list(table["smiles"]) == ["Cc1ccccc1"]
+    assert list(problems["substituent_1"]) == ["[*]=O"]
+    assert problems["reason"].iloc[0].startswith("cannot join")
+
+
+@pytest.mark.parametrize("scaffold, subs, message", [
+    ("c1ccccc1", {"1": ["C"]}, "no attachment points"),
+    ("c1ccccc1[*]", {"1": ["C"]}, "needs a number"),
+    ("c1ccc([*:1])cc1[*:1]", {"1": ["C"]}, "used twice"),
+    ("c1ccc([*:1])cc1[*:2]", {"1": ["C"]}, "no list for site 2"),
+    ("c1ccccc1[*:1]", {"1": ["C"], "3": ["C"]}, "site 3 is not an attachment point"),
+    ("c1ccccc1[*:1]", {"1": ["[*]C[*]"]}, "site 1, '[*]C[*]': needs exactly one attachment point"),
+    ("c1ccccc1[*:1]", {"1": ["C1CC"]}, "site 1, 'C1CC': not a valid SMILES"),
+    ("c1ccccc1[*:1]", {"1": "C"}, "give a list"),
+])
+def test_bad_library_settings_name_the_site_and_the_reason(scaffold, subs, message):
+    with pytest.raises(SettingsError, match=re.escape(message)):
+        build_library(LibrarySettings(scaffold=scaffold, substituents=subs))
+    assert attachment_points("[*:2]c1ccccc1[*:1]") == [1, 2]
+
+
+def test_library_command_writes_candidates_that_compute_reads(tmp_path: Path):
+    (tmp_path / "campaign.toml").write_text(
+        '[compute]\nrole = "catholyte"\n[inputs]\ncandidates = "inputs/library.csv"\n'
+        '[library]\nscaffold = "COc1cc([*:1])c(OC)cc1[*:2]"\nid_prefix = "dmb"\n'
+        '[library.substituents]\n1 = ["H", "C", "C(C)(C)C"]\n2 = ["H", "C", "C(C)(C)C"]\n'
+    )
+    result = CliRunner().invoke(main, ["library", str(tmp_path)])
+    assert result.exit_code == 0, result.output
+    assert "9 combinations, 6 distinct molecules (3 repeats by symmetry, 0 left out)" in result.output
+    cands, problems = read_candidates(tmp_path / "inputs" / "library.csv", ComputeSettings())
+    assert len(cands) == 6 and not problems
+    assert cands[0].extra == {"substituent_1": "H", "substituent_2": "H"}
+    # a bad setting is one line on stderr and exit code 2
+    (tmp_path / "campaign.toml").write_text('[library]\nscaffold = "c1ccccc1"\n')
+    bad = CliRunner().invoke(main, ["library", str(tmp_path)])
+    assert bad.exit_code == 2 and "no attachment points" in bad.output
