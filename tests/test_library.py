@@ -85,3 +85,16 @@ def test_library_command_writes_candidates_that_compute_reads(tmp_path: Path):
     (tmp_path / "campaign.toml").write_text('[library]\nscaffold = "c1ccccc1"\n')
     bad = CliRunner().invoke(main, ["library", str(tmp_path)])
     assert bad.exit_code == 2 and "no attachment points" in bad.output
+
+
+def test_run_builds_the_library_before_computing(tmp_path: Path):
+    from redoxfront.pipeline import run_campaign
+
+    (tmp_path / "campaign.toml").write_text(
+        '[compute]\nrole = "catholyte"\nworkers = 1\n[compute.conformers]\nn_generate = 2\nrefine_lowest = 1\n'
+        '[inputs]\ncandidates = "inputs/library.csv"\n'
+        '[library]\nscaffold = "COc1ccc([*:1])cc1"\n[library.substituents]\n1 = ["H", "OC"]\n'
+    )
+    summary = run_campaign(tmp_path, progress=False, echo=lambda _: None)
+    assert summary.lines[0].split()[:5] == ["library", "2", "combinations,", "2", "distinct"]
+    assert "2 of 2 candidates computed" in summary.lines[1]

@@ -1,6 +1,6 @@
 """The whole job on one campaign, step by step: what ``redoxfront run`` does.
 
-compute -> fade fitting (if cycling files are given) -> calibration -> rate model
+library (if the campaign has a [library] section) -> compute -> fade fitting (if cycling files are given) -> calibration -> rate model
 (if rates are available) -> cell metrics and ranking -> the HTML report. Each step is the library
 function its own command calls; a step without its inputs is skipped with the reason.
 """
@@ -47,6 +47,11 @@ def run_campaign(
         summary.add(step, text)
         echo(summary.lines[-1])
 
+    if camp.section("library"):
+        from redoxfront.library import library_for_campaign
+
+        out, combos, distinct, problems = library_for_campaign(camp)
+        note("library", f"{combos} combinations, {distinct} distinct molecules, {len(problems)} left out ({out})")
     report = compute_campaign(camp, workers=workers, dask_address=dask_address, progress=progress)
     ok = int((report.table["status"] == "ok").sum()) if len(report.table) else 0
     note("compute", f"{ok} of {len(report.table)} candidates computed, {len(report.problems)} input rows "
