@@ -7,6 +7,7 @@ from pathlib import Path
 import pytest
 from click.testing import CliRunner
 from rdkit import Chem
+from rdkit.Chem import Descriptors
 from rdkit.Chem.rdMolDescriptors import CalcMolFormula
 
 from redoxfront.campaign import ComputeSettings
@@ -98,3 +99,37 @@ def test_run_builds_the_library_before_computing(tmp_path: Path):
     summary = run_campaign(tmp_path, progress=False, echo=lambda _: None)
     assert summary.lines[0].split()[:5] == ["library", "2", "combinations,", "2", "distinct"]
     assert "2 of 2 candidates computed" in summary.lines[1]
+
+
+def test_charged_products_get_balancing_counterions():
+    # a trimethylammonium arm makes a cation: one BF4- balances it, and the molar mass includes it
+    lib = LibrarySettings(scaffold="COc1ccc(OC)cc1[*:1]", substituents={"1": ["H", "C[N+](C)(C)C"]},
+                          counterion="F[B-](F)(F)F")
+    table, problems = build_library(lib)
+    assert problems.empty
+    by_sub = table.set_index("substituent_1")
+    assert by_sub.loc["H", "counterion"] == ""
+    assert by_sub.loc["C[N+](C)(C)C", "counterion"] == "F[B-](F)(F)F"
+    cand = next(c for c in read_candidates_from(table) if c.extra["substituent_1"] == "C[N+](C)(C)C")
+    assert cand.counterions == ("F[B-](F)(F)F",)
+    # BF4-: 10.81 + 4 x 18.998 = 86.80 g/mol (IUPAC standard atomic weights of B and F)
+    main_mass = Descriptors.MolWt(Chem.MolFromSmiles(cand.main_smiles))
+    assert cand.molar_mass_g_per_mol - main_mass == pytest.approx(86.80, abs=0.01)
+    # a dication needs two; an anion cannot be balanced by an anion, and no counterion is a reason
+    two = LibrarySettings(scaffold="[*:1]c1ccc([*:2])cc1", substituents={"1": ["C[N+](C)(C)C"], "2": ["C[N+](C)(C)C"]},
+                          counterion="F[B-](F)(F)F")
+    assert build_library(two)[0]["counterion"].iloc[0] == "F[B-](F)(F)F.F[B-](F)(F)F"
+    anion = LibrarySettings(scaffold="c1ccccc1[*:1]", substituents={"1": ["S(=O)(=O)[O-]"]}, counterion="F[B-](F)(F)F")
+    assert "cannot be balanced" in build_library(anion)[1]["reason"].iloc[0]
+    bare = LibrarySettings(scaffold="c1ccccc1[*:1]", substituents={"1": ["C[N+](C)(C)C"]})
+    assert "no [library] counterion" in build_library(bare)[1]["reason"].iloc[0]
+    with pytest.raises(SettingsError, match="charged ion"):
+        build_library(LibrarySettings(scaffold="c1ccccc1[*:1]", substituents={"1": ["C"]}, counterion="CC"))
+
+
+def read_candidates_from(table):
+    from redoxfront.structures import parse_candidate
+
+    settings = ComputeSettings()
+    return [parse_candidate({k: ("" if v is None else str(v)) for k, v in r.items()}, i + 2, settings)
+            for i, r in enumerate(table.to_dict("records"))]

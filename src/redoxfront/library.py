@@ -37,6 +37,9 @@ class LibrarySettings:
     id_prefix: str = "lib"
     output: str = "inputs/library.csv"
     """Where the candidates table is written, relative to the campaign folder."""
+    counterion: str = ""
+    """SMILES of one counterion (e.g. "F[B-](F)(F)F") for products that carry a net charge:
+    as many as balance the charge go into the ``counterion`` column (molar mass)."""
 
 
 def _parse(smiles: str) -> Chem.Mol | None:
@@ -81,6 +84,29 @@ def substituent_fragment(text: str, site: int) -> str:
     return Chem.MolToSmiles(mol)
 
 
+def _counterion_charge(counterion: str) -> int:
+    mol = Chem.MolFromSmiles(counterion) if counterion else None
+    if counterion and (mol is None or Chem.GetFormalCharge(mol) == 0):
+        raise SettingsError(f"[library] counterion '{counterion}' must be a valid SMILES of a charged ion")
+    return Chem.GetFormalCharge(mol) if mol is not None else 0
+
+
+def balancing_counterions(product_charge: int, counterion: str, counterion_charge: int) -> str:
+    """The counterions that make a product neutral, as one dotted SMILES ('' if neutral).
+
+    Raises ValueError when the charge cannot be balanced by whole counterions.
+    """
+    if product_charge == 0:
+        return ""
+    if not counterion:
+        raise ValueError(f"net charge {product_charge:+d} and no [library] counterion to balance it")
+    count, rest = divmod(-product_charge, counterion_charge)
+    if rest or count <= 0:
+        raise ValueError(f"net charge {product_charge:+d} cannot be balanced by the counterion "
+                         f"'{counterion}' (charge {counterion_charge:+d})")
+    return ".".join([counterion] * count)
+
+
 def build_library(settings: LibrarySettings) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Every scaffold x substituent combination, one row per distinct molecule.
 
@@ -89,6 +115,7 @@ def build_library(settings: LibrarySettings) -> tuple[pd.DataFrame, pd.DataFrame
     sanitise (``id``, ``reason``), which are left out while the rest goes on.
     """
     sites = attachment_points(settings.scaffold)
+    ion_charge = _counterion_charge(settings.counterion)
     given = {str(k): v for k, v in settings.substituents.items()}
     missing = [s for s in sites if str(s) not in given]
     extra = sorted(set(given) - {str(s) for s in sites})
@@ -124,8 +151,14 @@ def build_library(settings: LibrarySettings) -> tuple[pd.DataFrame, pd.DataFrame
                 continue
             if smiles in seen:
                 continue  # the same molecule from a symmetry-equivalent combination
+            try:
+                ions = balancing_counterions(Chem.GetFormalCharge(product), settings.counterion, ion_charge)
+            except ValueError as exc:
+                problems.append({"id": cid, **labels, "reason": str(exc)})
+                continue
             seen[smiles] = cid
-            rows.append({"id": cid, "smiles": smiles, **labels})
+            rows.append({"id": cid, "smiles": smiles, **({"counterion": ions} if settings.counterion else {}),
+                         **labels})
     finally:
         RDLogger.EnableLog("rdApp.*")
     return pd.DataFrame(rows), pd.DataFrame(problems, columns=["id", *[f"substituent_{s}" for s in sites], "reason"])
@@ -146,5 +179,5 @@ def library_for_campaign(campaign: Campaign) -> tuple[Path, int, int, pd.DataFra
     return out, combos, len(table), problems
 
 
-__all__ = ["HYDROGEN", "LibrarySettings", "attachment_points", "build_library", "library_for_campaign",
-           "substituent_fragment"]
+__all__ = ["HYDROGEN", "LibrarySettings", "attachment_points", "balancing_counterions", "build_library",
+           "library_for_campaign", "substituent_fragment"]
