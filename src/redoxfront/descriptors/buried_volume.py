@@ -12,17 +12,25 @@ Eur. J. Inorg. Chem. 2009, 1759). Computed on a cubic grid of points inside the 
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from redoxfront.errors import InputError
 
 
+@functools.lru_cache(maxsize=8)
 def sphere_grid(radius_angstrom: float, spacing_angstrom: float) -> np.ndarray:
-    """Points of a cubic grid (centred on the origin) that lie inside the sphere, Angstrom."""
+    """Points of a cubic grid (centred on the origin) that lie inside the sphere, Angstrom.
+
+    Built once per (radius, spacing) and shared: the returned array is read-only.
+    """
     n = int(np.ceil(radius_angstrom / spacing_angstrom))
     axis = np.arange(-n, n + 1) * spacing_angstrom
     g = np.stack(np.meshgrid(axis, axis, axis, indexing="ij"), axis=-1).reshape(-1, 3)
-    return g[np.einsum("ij,ij->i", g, g) <= radius_angstrom**2]
+    inside = g[np.einsum("ij,ij->i", g, g) <= radius_angstrom**2]
+    inside.setflags(write=False)
+    return inside
 
 
 def percent_buried_volume(
