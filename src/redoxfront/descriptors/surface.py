@@ -34,20 +34,14 @@ def atom_sasa(
     """Solvent-accessible surface area of every atom, square Angstrom (Shrake-Rupley 1973)."""
     x = np.asarray(positions_angstrom, dtype=float)
     big = np.asarray(radii_angstrom, dtype=float) + probe_angstrom
+    n = len(x)
     unit = sphere_points(n_points)
-    tree = cKDTree(x)
-    pairs = tree.query_ball_point(x, r=2.0 * big.max())
-    out = np.empty(len(x))
-    for i, nbrs in enumerate(pairs):
-        nb = np.array([j for j in nbrs if j != i], dtype=int)
-        pts = x[i] + big[i] * unit
-        if nb.size:
-            nb = nb[np.linalg.norm(x[nb] - x[i], axis=1) < big[i] + big[nb]]
-        if nb.size:
-            d2 = ((pts[:, None, :] - x[nb][None, :, :]) ** 2).sum(axis=2)
-            free = ~(d2 < big[nb][None, :] ** 2).any(axis=1)
-            share = free.mean()
-        else:
-            share = 1.0
-        out[i] = 4.0 * np.pi * big[i] ** 2 * share
-    return out
+    pts = (x[:, None, :] + big[:, None, None] * unit[None, :, :]).reshape(-1, 3)
+    owner = np.repeat(np.arange(n), n_points)
+    # every (test point, atom) pair closer than the largest enlarged radius, at once
+    pairs = cKDTree(pts).sparse_distance_matrix(cKDTree(x), big.max(), output_type="coo_matrix")
+    hit = (pairs.data < big[pairs.col]) & (pairs.col != owner[pairs.row])
+    buried = np.zeros(len(pts), dtype=bool)
+    buried[pairs.row[hit]] = True
+    share = 1.0 - buried.reshape(n, n_points).mean(axis=1)
+    return 4.0 * np.pi * big**2 * share
