@@ -24,7 +24,7 @@ from rdkit import Chem
 
 from redoxfront import columns
 from redoxfront.campaign import bounded, choice, section_from_mapping
-from redoxfront.descriptors.buried_volume import percent_buried_volume, sphere_grid
+from redoxfront.descriptors.buried_volume import percent_buried_volume
 from redoxfront.descriptors.clearance import ring_of_attachment, ring_plane_clearance
 from redoxfront.descriptors.electronic import (
     atomic_spin_populations,
@@ -258,7 +258,6 @@ def _steric(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSetting
         return
     r_bv = r_bondi * ds.buried_volume_radii_scale
     heavy = np.array([a.GetAtomicNum() > 1 for a in mol.GetAtoms()])
-    grid = sphere_grid(ds.buried_volume_sphere_radius_angstrom, ds.buried_volume_grid_spacing_angstrom)
     sasa_cache: dict[int, np.ndarray] = {}
 
     def sasa(k: int) -> np.ndarray:
@@ -280,8 +279,9 @@ def _steric(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSetting
 
         def atom_values(k: int, centre: int = centre, include: np.ndarray = include) -> tuple[float, ...]:
             x = geo.conformers[k].positions_angstrom
-            bv = percent_buried_volume(x, r_bv, centre, include, grid=grid,
-                                       sphere_radius_angstrom=ds.buried_volume_sphere_radius_angstrom)
+            bv = percent_buried_volume(x, r_bv, centre, include,
+                                       sphere_radius_angstrom=ds.buried_volume_sphere_radius_angstrom,
+                                       spacing_angstrom=ds.buried_volume_grid_spacing_angstrom)
             return bv, float(sasa(k)[centre])
 
         row.per_conformer(("buried_volume_percent", "sasa_angstrom2"), geo, w, atom_values,
