@@ -23,6 +23,7 @@ from redoxfront.campaign import Campaign, ComputeSettings
 from redoxfront.errors import EngineError, InputError
 from redoxfront.descriptors import descriptors_for_candidate
 from redoxfront.executors import map_tasks
+from redoxfront.geometries import write_geometries
 from redoxfront.optimize import optimize_geometry
 from redoxfront.potentials import potential_v, reduction_free_energy_ev
 from redoxfront.records import POSITION_DECIMALS, CandidateStates, ConformerResult, StateResult
@@ -338,6 +339,8 @@ def compute_campaign(
 ) -> ComputeReport:
     """Read the campaign's candidates, compute them, write ``results/descriptors.csv``.
 
+    Also writes ``results/geometries.sdf``: the lowest conformer of every redox state.
+
     Bad rows are written to ``results/input_problems.csv`` with row, field and reason;
     they never stop the batch. ``describe=False``: potentials only, no descriptors.
     """
@@ -357,6 +360,7 @@ def compute_campaign(
         columns=["file", "row", "field", "reason"],
     )
     problems_table.to_csv(out.parent / "input_problems.csv", index=False)
+    write_geometries([o.states for o in outcomes if o.states is not None], out.parent / "geometries.sdf")
     return ComputeReport(
         table=table,
         problems=problems,
