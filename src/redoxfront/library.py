@@ -13,6 +13,7 @@ site, which travel on as user columns) that ``redoxfront compute`` reads like an
 from __future__ import annotations
 
 import itertools
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -130,10 +131,7 @@ def build_library(settings: LibrarySettings) -> tuple[pd.DataFrame, pd.DataFrame
         if isinstance(texts, str) or not texts:
             raise SettingsError(f"[library.substituents] site {s}: give a list of substituents, e.g. [\"H\", \"C\"]")
         choices.append([(t.strip(), substituent_fragment(t, s)) for t in texts])
-    total = 1
-    for c in choices:
-        total *= len(c)
-    width = len(str(total))
+    width = len(str(math.prod(len(c) for c in choices)))
     rows, problems, seen = [], [], {}
     RDLogger.DisableLog("rdApp.*")  # molzip warns about H next to dummies; failures are reported below
     try:
@@ -170,9 +168,7 @@ def library_for_campaign(campaign: Campaign) -> tuple[Path, int, int, pd.DataFra
     if not settings.scaffold:
         raise SettingsError("[library] scaffold is missing; e.g. scaffold = \"COc1cc([*:1])c(OC)cc1[*:2]\"")
     table, problems = build_library(settings)
-    combos = 1
-    for v in settings.substituents.values():
-        combos *= len(v)
+    combos = math.prod(len(v) for v in settings.substituents.values())
     out = campaign.path(settings.output)
     out.parent.mkdir(parents=True, exist_ok=True)
     table.to_csv(out, index=False)
