@@ -181,6 +181,15 @@ def test_engine_failure_is_reported_and_batch_goes_on(tmp_path):
     assert "number of electrons" in status[0]
     assert status[1] == "ok"
     assert compute_campaign(camp, progress=False).new_engine_calls == 0  # failures are stored too
+    # the command names every failed candidate and why
+    from click.testing import CliRunner
+
+    from redoxfront.cli import main
+
+    result = CliRunner().invoke(main, ["compute", str(tmp_path), "--quiet"])
+    assert result.exit_code == 0
+    assert "1 candidates computed, 1 failed" in result.output
+    assert "failed: m0: discharged state: tblite GFN2-xTB failed" in result.output
 
 
 def test_charged_state_starts_from_the_vertical_point_already_computed(tmp_path):

@@ -98,6 +98,9 @@ def compute_command(campaign: Path, candidates: Path | None, out: Path | None, w
     )
     for p in report.problems:
         click.echo(f"  rejected: {p}", err=True)
+    for o in report.outcomes:
+        if o.failure:
+            click.echo(f"  failed: {o.candidate.id}: {o.failure}", err=True)
 
 
 @main.command("fade")
