@@ -19,6 +19,7 @@ from pathlib import Path
 
 import pandas as pd
 from rdkit import Chem, RDLogger
+from tqdm.auto import tqdm
 
 from redoxfront.campaign import Campaign, section_from_mapping
 from redoxfront.errors import SettingsError
@@ -108,7 +109,7 @@ def balancing_counterions(product_charge: int, counterion: str, counterion_charg
     return ".".join([counterion] * count)
 
 
-def build_library(settings: LibrarySettings) -> tuple[pd.DataFrame, pd.DataFrame]:
+def build_library(settings: LibrarySettings, *, progress: bool = False) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Every scaffold x substituent combination, one row per distinct molecule.
 
     Returns (candidates, problems): candidates has ``id``, ``smiles`` and
@@ -131,11 +132,14 @@ def build_library(settings: LibrarySettings) -> tuple[pd.DataFrame, pd.DataFrame
         if isinstance(texts, str) or not texts:
             raise SettingsError(f"[library.substituents] site {s}: give a list of substituents, e.g. [\"H\", \"C\"]")
         choices.append([(t.strip(), substituent_fragment(t, s)) for t in texts])
-    width = len(str(math.prod(len(c) for c in choices)))
+    total = math.prod(len(c) for c in choices)
+    width = len(str(total))
     rows, problems, seen = [], [], {}
     RDLogger.DisableLog("rdApp.*")  # molzip warns about H next to dummies; failures are reported below
     try:
-        for k, combo in enumerate(itertools.product(*choices), start=1):
+        combos = tqdm(itertools.product(*choices), total=total, desc="library", unit="mol",
+                      disable=not progress or total < 5000)
+        for k, combo in enumerate(combos, start=1):
             cid = f"{settings.id_prefix}-{k:0{width}d}"
             labels = {f"substituent_{s}": text for s, (text, _) in zip(sites, combo)}
             joined = ".".join([settings.scaffold] + [frag for _, frag in combo])
@@ -162,12 +166,12 @@ def build_library(settings: LibrarySettings) -> tuple[pd.DataFrame, pd.DataFrame
     return pd.DataFrame(rows), pd.DataFrame(problems, columns=["id", *[f"substituent_{s}" for s in sites], "reason"])
 
 
-def library_for_campaign(campaign: Campaign) -> tuple[Path, int, int, pd.DataFrame]:
+def library_for_campaign(campaign: Campaign, *, progress: bool = True) -> tuple[Path, int, int, pd.DataFrame]:
     """Build the campaign's ``[library]`` and write it; returns (path, combinations, distinct, problems)."""
     settings = section_from_mapping(LibrarySettings, campaign.section("library"), "library")
     if not settings.scaffold:
         raise SettingsError("[library] scaffold is missing; e.g. scaffold = \"COc1cc([*:1])c(OC)cc1[*:2]\"")
-    table, problems = build_library(settings)
+    table, problems = build_library(settings, progress=progress)
     combos = math.prod(len(v) for v in settings.substituents.values())
     out = campaign.path(settings.output)
     out.parent.mkdir(parents=True, exist_ok=True)

@@ -50,7 +50,7 @@ def run_campaign(
     if camp.section("library"):
         from redoxfront.library import library_for_campaign
 
-        out, combos, distinct, problems = library_for_campaign(camp)
+        out, combos, distinct, problems = library_for_campaign(camp, progress=progress)
         note("library", f"{combos} combinations, {distinct} distinct molecules, {len(problems)} left out ({out})")
     report = compute_campaign(camp, workers=workers, dask_address=dask_address, progress=progress)
     ok = int((report.table["status"] == "ok").sum()) if len(report.table) else 0
