@@ -133,3 +133,20 @@ def read_candidates_from(table):
     settings = ComputeSettings()
     return [parse_candidate({k: ("" if v is None else str(v)) for k, v in r.items()}, i + 2, settings)
             for i, r in enumerate(table.to_dict("records"))]
+
+
+def test_joined_molecules_equal_the_same_molecules_written_out_by_hand():
+    # an independent route: write each product's SMILES with the substituents as branches
+    # (ring-closure digits renumbered) and compare the canonical sets
+    subs = ["H", "C", "OC", "C(F)(F)F", "c1ccccc1"]
+    lib = LibrarySettings(scaffold="COc1c([*:3])c([*:1])c(OC)cc1[*:2]",
+                          substituents={"1": subs, "2": subs, "3": subs})
+    table, problems = build_library(lib)
+
+    def branch(s: str, digit: str) -> str:
+        return "" if s == "H" else f"({s.replace('1', digit)})"
+
+    by_hand = {Chem.CanonSmiles(f"COc9c{branch(c, '8')}c{branch(a, '7')}c(OC)cc9{branch(b, '6')}")
+               for a in subs for b in subs for c in subs}
+    assert problems.empty
+    assert set(table["smiles"]) == by_hand
