@@ -36,6 +36,7 @@ from redoxfront.units import HARTREE_EV, HARTREE_KCAL_PER_MOL
         ({"a": {"smarts": "cO", "atoms": [1, 2, 1]}}, r"give one position .* or two different"),
         ({"a": {"smarts": "c", "colour": 1}}, r"\[sites.a\] unknown key 'colour'"),
         ({"a": "c"}, r"\[sites.a\] expected a table"),
+        ({"a": {"smarts": "c", "several_places": "all"}}, r"several_places = 'all' is not allowed; allowed values: refuse, min, max, mean"),
     ],
 )
 def test_site_settings_errors(table: dict, message: str) -> None:
@@ -162,3 +163,37 @@ def test_descriptor_settings_are_validated() -> None:
         descriptors_for_candidate(Chem.MolFromSmiles("C"), CandidateStates("x", "C"), {},
                                   {"sterimol_radii": "uff"})
     assert DescriptorSettings().buried_volume_sphere_radius_angstrom == 3.5  # common setting
+
+
+@pytest.mark.parametrize("how", ["min", "max", "mean"])
+def test_several_places_summarise_the_values_of_each_place(how: str) -> None:
+    # the two methoxy groups next to a t-Bu are not equivalent; with several_places the site
+    # reports, per conformer, the min / max / mean over both places. Checked against the same
+    # two places named one by one with atom-map numbers: the ensemble minimum of per-conformer
+    # minima is the smaller of the two minima (likewise for max), and the Boltzmann mean is
+    # linear, so the mean over places of the means equals the mean of the per-conformer means
+    mol, cs = _states()
+    places = sorted({m[:2] for m in mol.GetSubstructMatches(Chem.MolFromSmarts("c-O[CH3]"))})
+    assert len(places) == 2
+    for n, (c, o) in enumerate(places):
+        mol.GetAtomWithIdx(c).SetAtomMapNum(2 * n + 1)
+        mol.GetAtomWithIdx(o).SetAtomMapNum(2 * n + 2)
+    sites = {
+        "methoxy": {"smarts": "c-O[CH3]", "atoms": [1, 2], "several_places": how},
+        "place_a": {"map_numbers": [1, 2]},
+        "place_b": {"map_numbers": [3, 4]},
+    }
+    row = descriptors_for_candidate(mol, cs, sites, {"energy_window_kcal_per_mol": 3.0})
+    assert f"site methoxy: {how} over 2 non-equivalent places" in row["descriptor_notes"]
+    checks = [("buried_volume_percent", None), ("sasa_angstrom2", None), ("sterimol_b1_angstrom", None),
+              ("sterimol_l_angstrom", None), ("ring_clearance_angstrom", None), ("spin_density", None),
+              ("partial_charge_e", "charged")]
+    for q, state in checks:
+        def col(site: str, stat: str) -> float:
+            return row[columns.descriptor_column(q, site, state, stat)]
+        a, b = col("place_a", how), col("place_b", how)
+        expected = {"min": min(a, b), "max": max(a, b), "mean": 0.5 * (a + b)}[how]
+        assert col("methoxy", how) == pytest.approx(expected, rel=1e-9, abs=1e-12), q
+    # the two places really differ (otherwise the check above proves little)
+    assert row[columns.descriptor_column("buried_volume_percent", "place_a", None, "mean")] != pytest.approx(
+        row[columns.descriptor_column("buried_volume_percent", "place_b", None, "mean")], abs=0.5)

@@ -273,52 +273,80 @@ def _steric(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSetting
         m = matches[spec.name]
         if not m.found:
             continue
-        centre = m.atoms[0]
-        include = np.ones(len(heavy), bool) if ds.buried_volume_include_hydrogens else heavy.copy()
-        include[centre] = ds.buried_volume_include_site_atom
+        label = f"site {spec.name}"
+        if len(m.places) > 1:
+            row.note(f"{label}: {m.summary} over {len(m.places)} non-equivalent places")
 
-        def atom_values(k: int, centre: int = centre, include: np.ndarray = include) -> tuple[float, ...]:
-            x = geo.conformers[k].positions_angstrom
-            bv = percent_buried_volume(x, r_bv, centre, include,
-                                       sphere_radius_angstrom=ds.buried_volume_sphere_radius_angstrom,
-                                       spacing_angstrom=ds.buried_volume_grid_spacing_angstrom)
-            return bv, float(sasa(k)[centre])
+        def atom_fn(centre: int) -> Callable[[int], tuple[float, ...]]:
+            include = np.ones(len(heavy), bool) if ds.buried_volume_include_hydrogens else heavy.copy()
+            include[centre] = ds.buried_volume_include_site_atom
 
-        row.per_conformer(("buried_volume_percent", "sasa_angstrom2"), geo, w, atom_values,
-                          spec.name, f"site {spec.name}")
+            def fn(k: int) -> tuple[float, ...]:
+                x = geo.conformers[k].positions_angstrom
+                bv = percent_buried_volume(x, r_bv, centre, include,
+                                           sphere_radius_angstrom=ds.buried_volume_sphere_radius_angstrom,
+                                           spacing_angstrom=ds.buried_volume_grid_spacing_angstrom)
+                return bv, float(sasa(k)[centre])
+            return fn
+
+        row.per_conformer(("buried_volume_percent", "sasa_angstrom2"), geo, w,
+                          _over_places([atom_fn(p[0]) for p in m.places], m.summary), spec.name, label)
         if not m.is_bond:
             continue
-        a, b = m.atoms
         try:
-            sub = substituent_atoms(mol, a, b)
+            bonds = [(a, b, substituent_atoms(mol, a, b)) for a, b in m.places]
         except RedoxfrontError as exc:
-            row.note(f"site {spec.name}: {exc}")
-            continue
-        z_first = mol.GetAtomWithIdx(b).GetAtomicNum()
-
-        def sterimol_values(k: int, a: int = a, b: int = b, sub: np.ndarray = sub,
-                            z_first: int = z_first) -> tuple[float, ...]:
-            res = sterimol(geo.conformers[k].positions_angstrom, r_sterimol, a, b, sub,
-                           l_origin=ds.sterimol_l_origin,
-                           l_correction_angstrom=ds.sterimol_l_correction_angstrom,
-                           first_element=z_first)
-            return res.l_angstrom, res.b1_angstrom, res.b5_angstrom
-
-        row.per_conformer(_SITE_BOND_QUANTITIES[:3], geo, w, sterimol_values, spec.name,
-                          f"site {spec.name}")
-        try:
-            ring = ring_of_attachment(mol, a, b)
-        except RedoxfrontError as exc:
-            row.note(f"site {spec.name}: {exc}")
+            row.note(f"{label}: {exc}")
             continue
 
-        def clearance_values(k: int, ring: tuple[int, ...] = ring,
-                             sub: np.ndarray = sub) -> tuple[float, ...]:
-            res = ring_plane_clearance(geo.conformers[k].positions_angstrom, r_clear, ring, sub)
-            return res.clearance_angstrom, res.above_angstrom, res.below_angstrom
+        def sterimol_fn(a: int, b: int, sub: np.ndarray) -> Callable[[int], tuple[float, ...]]:
+            z_first = mol.GetAtomWithIdx(b).GetAtomicNum()
 
-        row.per_conformer(_SITE_BOND_QUANTITIES[3:], geo, w, clearance_values, spec.name,
-                          f"site {spec.name}")
+            def fn(k: int) -> tuple[float, ...]:
+                res = sterimol(geo.conformers[k].positions_angstrom, r_sterimol, a, b, sub,
+                               l_origin=ds.sterimol_l_origin,
+                               l_correction_angstrom=ds.sterimol_l_correction_angstrom,
+                               first_element=z_first)
+                return res.l_angstrom, res.b1_angstrom, res.b5_angstrom
+            return fn
+
+        row.per_conformer(_SITE_BOND_QUANTITIES[:3], geo, w,
+                          _over_places([sterimol_fn(*bond) for bond in bonds], m.summary), spec.name, label)
+        try:
+            rings = [ring_of_attachment(mol, a, b) for a, b, _ in bonds]
+        except RedoxfrontError as exc:
+            row.note(f"{label}: {exc}")
+            continue
+
+        def clearance_fn(ring: tuple[int, ...], sub: np.ndarray) -> Callable[[int], tuple[float, ...]]:
+            def fn(k: int) -> tuple[float, ...]:
+                res = ring_plane_clearance(geo.conformers[k].positions_angstrom, r_clear, ring, sub)
+                return res.clearance_angstrom, res.above_angstrom, res.below_angstrom
+            return fn
+
+        row.per_conformer(_SITE_BOND_QUANTITIES[3:], geo, w,
+                          _over_places([clearance_fn(r, bond[2]) for r, bond in zip(rings, bonds)], m.summary),
+                          spec.name, label)
+
+
+_SUMMARIES: dict[str, Callable[..., np.ndarray]] = {"min": np.min, "max": np.max, "mean": np.mean}
+
+
+def _over_places(fns: list[Callable[[int], tuple[float, ...]]], how: str) -> Callable[[int], tuple[float, ...]]:
+    """One per-conformer function from one per place of a site: their min, max or mean, value by value."""
+    if len(fns) == 1:
+        return fns[0]
+
+    def fn(k: int) -> tuple[float, ...]:
+        return tuple(float(v) for v in _SUMMARIES[how](np.array([f(k) for f in fns], dtype=float), axis=0))
+    return fn
+
+
+def _at_places(per_atom: list[np.ndarray | None], m: SiteMatch) -> np.ndarray:
+    """A per-conformer atom property at the site: per conformer, the summary over its places."""
+    vals = np.array([[np.nan if a is None else float(np.asarray(a)[p[0]]) for a in per_atom]
+                     for p in m.places])
+    return vals[0] if len(m.places) == 1 else _SUMMARIES[m.summary](vals, axis=0)
 
 
 def _electronic(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSettings,
@@ -341,8 +369,8 @@ def _electronic(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSet
         for j, q in enumerate(_STATE_QUANTITIES):
             row.put(q, summarise(vals[:, j], ens[s]), None, s)
         for name, m in found.items():
-            q = np.array([float(np.asarray(c.charges)[m.atoms[0]]) for c in st.conformers])
-            row.put("partial_charge_e", summarise(q, ens[s]), name, s)
+            row.put("partial_charge_e", summarise(_at_places([c.charges for c in st.conformers], m), ens[s]),
+                    name, s)
     rad = _radical_state(cs)
     if rad is None:
         row.note("no open-shell state; spin descriptors empty")
@@ -373,9 +401,7 @@ def _electronic(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSet
             row.put("spin_density_max_carbon", summarise(max_c, w))
             row.put("spin_exposure_angstrom2", summarise(exposure, w))
             for name, m in found.items():
-                site_spin = np.array([np.nan if s is None else float(np.asarray(s)[m.atoms[0]])
-                                      for s in spins])
-                row.put("spin_density", summarise(site_spin, w), name)
+                row.put("spin_density", summarise(_at_places(spins, m), w), name)
     # reorganisation energy of the first couple: discharged <-> next state
     dis = cs.states.get(STATE_DISCHARGED)
     other = cs.states.get(STATE_INTERMEDIATE) or cs.states.get(STATE_CHARGED)

@@ -15,9 +15,14 @@ A campaign names its sites in the ``[sites]`` section, one table per site::
 
 One position makes an atom site; two make a bond site (attachment atom on the parent
 side, then the first atom of the substituent). Matches that are symmetry-equivalent
-(same canonical atom ranks) count as one; a candidate with no match, or with several
-matches that are not equivalent, gets a per-row reason and empty values for that
-site, never an error that stops the batch.
+(same canonical atom ranks) count as one; a candidate with no match gets a per-row
+reason and empty values for that site, never an error that stops the batch. When a
+SMARTS matches several places that are not equivalent (two different methoxy groups of
+an unsymmetrical ring), ``several_places`` decides: ``"refuse"`` (the default: empty
+values and a reason), or ``"min"``, ``"max"``, ``"mean"``: every descriptor of the site
+is computed at each place and that summary of them is reported, per conformer, with a
+note that says how many places it covers. ``"min"`` of buried volume or Sterimol B1 is
+the least protected place, usually the one that matters for decomposition.
 """
 
 from __future__ import annotations
@@ -28,10 +33,11 @@ from typing import Any, Mapping
 
 from rdkit import Chem
 
-from redoxfront.campaign import section_from_mapping
+from redoxfront.campaign import choice, section_from_mapping
 from redoxfront.errors import SettingsError
 
 _NAME = re.compile(r"^[a-z][a-z0-9_]*$")
+SEVERAL_PLACES: tuple[str, ...] = ("refuse", "min", "max", "mean")
 
 
 @dataclass(frozen=True)
@@ -43,6 +49,8 @@ class SiteSpec:
     """1-based positions in the SMARTS: one (atom site) or two (bond: attachment, first)."""
     map_numbers: tuple[int, ...] | None = None
     """Atom-map numbers in the candidate SMILES instead of a SMARTS (one or two)."""
+    several_places: str = field(default="refuse", metadata=choice(*SEVERAL_PLACES))
+    """Non-equivalent matches: refuse, or report the min / max / mean over them."""
     name: str = ""
 
 
@@ -95,7 +103,7 @@ def sites_from_mapping(mapping: Mapping[str, Any] | None) -> SitesSettings:
                 )
         elif any(p < 1 for p in positions):
             raise SettingsError(f"[{where}] map_numbers must be positive")
-        out.append(SiteSpec(spec.smarts, tuple(spec.atoms), spec.map_numbers, name))
+        out.append(SiteSpec(spec.smarts, tuple(spec.atoms), spec.map_numbers, spec.several_places, name))
     return SitesSettings(sites=tuple(out))
 
 
@@ -107,6 +115,11 @@ class SiteMatch:
     atoms: tuple[int, ...] = field(default=())
     reason: str | None = None
     """Why the site has no atoms (no match, ambiguous match), else None."""
+    places: tuple[tuple[int, ...], ...] = ()
+    """Every non-equivalent placement (``atoms`` is the first); one unless the site's
+    ``several_places`` allows more."""
+    summary: str = "refuse"
+    """How values over several places are summarised (min, max, mean)."""
 
     @property
     def is_bond(self) -> bool:
@@ -134,7 +147,7 @@ def match_site(mol: Chem.Mol, spec: SiteSpec) -> SiteMatch:
         atoms = tuple(picked)
         if len(atoms) == 2 and mol.GetBondBetweenAtoms(*atoms) is None:
             return SiteMatch(spec.name, reason=f"site {spec.name}: mapped atoms are not bonded")
-        return SiteMatch(spec.name, atoms)
+        return SiteMatch(spec.name, atoms, places=(atoms,))
     patt = Chem.MolFromSmarts(spec.smarts)
     matches = mol.GetSubstructMatches(patt, uniquify=False, maxMatches=10000)
     if not matches:
@@ -145,13 +158,15 @@ def match_site(mol: Chem.Mol, spec: SiteSpec) -> SiteMatch:
         atoms = tuple(m[p - 1] for p in spec.atoms)
         key = tuple(ranks[a] for a in atoms)
         picks[key] = min(picks.get(key, atoms), atoms)
-    if len(picks) > 1:
+    places = tuple(sorted(picks.values()))
+    if len(places) > 1 and spec.several_places == "refuse":
         return SiteMatch(
             spec.name,
-            reason=f"site {spec.name}: SMARTS {spec.smarts} matches {len(picks)} non-equivalent "
-            "places; make the SMARTS more specific or use atom-map numbers",
+            reason=f"site {spec.name}: SMARTS {spec.smarts} matches {len(places)} non-equivalent "
+            "places; make the SMARTS more specific, use atom-map numbers, or set several_places "
+            "to min, max or mean",
         )
-    return SiteMatch(spec.name, next(iter(picks.values())))
+    return SiteMatch(spec.name, places[0], places=places, summary=spec.several_places)
 
 
 def match_sites(mol: Chem.Mol, settings: SitesSettings) -> dict[str, SiteMatch]:
