@@ -106,6 +106,8 @@ DESCRIPTOR_NOTES = "descriptor_notes"
 """Per-row reasons why some descriptor values are empty ('; '-separated)."""
 REORGANISATION_ENERGY = "reorganisation_energy_ev"
 """Four-point inner-sphere reorganisation energy of the first redox couple, eV."""
+REORGANISATION_ENERGY_2 = "reorganisation_energy_2_ev"
+"""The same for the second couple of a two-electron carrier (intermediate/charged), eV."""
 ENSEMBLE_STATS: tuple[str, ...] = ("mean", "min", "max")
 """Boltzmann mean, minimum and maximum over conformers within the energy window."""
 

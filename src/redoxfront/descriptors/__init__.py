@@ -138,7 +138,10 @@ def descriptor_columns(
         for q in _STATE_QUANTITIES:
             add(q, None, st)
     out.extend(columns.conformers_used_column(st) for st in states)
-    out.extend([columns.REORGANISATION_ENERGY, columns.DESCRIPTOR_NOTES])
+    out.append(columns.REORGANISATION_ENERGY)
+    if STATE_INTERMEDIATE in states:
+        out.append(columns.REORGANISATION_ENERGY_2)
+    out.append(columns.DESCRIPTOR_NOTES)
     return out
 
 
@@ -402,16 +405,18 @@ def _electronic(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSet
             row.put("spin_exposure_angstrom2", summarise(exposure, w))
             for name, m in found.items():
                 row.put("spin_density", summarise(_at_places(spins, m), w), name)
-    # reorganisation energy of the first couple: discharged <-> next state
-    dis = cs.states.get(STATE_DISCHARGED)
-    other = cs.states.get(STATE_INTERMEDIATE) or cs.states.get(STATE_CHARGED)
-    lam = reorganisation_energy(dis, other) if dis is not None and other is not None else None
-    if lam is None:
-        row.note("reorganisation energy needs paired conformers with vertical energies")
-    else:
-        row.values[columns.REORGANISATION_ENERGY] = lam.total_ev
+    # reorganisation energy of each couple: discharged <-> next state (and, for n = 2,
+    # intermediate <-> charged)
+    chain = [cs.states[s] for s in STATES if s in cs.states]
+    for column, (a, b) in zip((columns.REORGANISATION_ENERGY, columns.REORGANISATION_ENERGY_2),
+                              zip(chain[:-1], chain[1:])):
+        lam = reorganisation_energy(a, b)
+        if lam is None:
+            row.note(f"reorganisation energy {a.state}/{b.state} needs paired conformers with vertical energies")
+            continue
+        row.values[column] = lam.total_ev
         if lam.total_ev < -1e-3:
             row.note(
-                f"negative reorganisation energy ({lam.total_ev:.3f} eV): an optimisation "
-                "did not reach the minimum of its state"
+                f"negative reorganisation energy {a.state}/{b.state} ({lam.total_ev:.3f} eV): an "
+                "optimisation did not reach the minimum of its state"
             )
