@@ -69,3 +69,8 @@ def test_run_every_step_and_report(tmp_path):
     assert "test data made by a known rule" in html
     assert "data:image/png;base64," in html  # figures embedded: one self-contained file
     assert "safety data sheets" in html
+    # provenance: the engine's version and the key of the stored states are in the report
+    from importlib.metadata import version
+
+    assert f"tblite {version('tblite')}" in html
+    assert f"settings hash {camp.compute.result_hash()}" in html

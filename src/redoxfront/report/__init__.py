@@ -24,6 +24,20 @@ from dataclasses import dataclass
 from redoxfront.campaign import Campaign, section_from_mapping
 from redoxfront.report.safety import SAFETY_NOTES
 
+
+def _software() -> str:
+    """Versions of the programs the numbers came from, for the record."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    parts = [f"redoxfront {__version__}"]
+    for name in ("tblite", "rdkit", "numpy", "scipy", "statsmodels"):
+        try:
+            parts.append(f"{name} {version(name)}")
+        except PackageNotFoundError:
+            continue
+    return ", ".join(parts)
+
+
 @dataclass(frozen=True)
 class ReportSettings:
     """Campaign section ``[report]``: a note shown at the top (e.g. that data are invented)."""
@@ -187,7 +201,8 @@ def render_report(campaign: Campaign) -> str:
     s = campaign.compute
     method = (f"{s.method} (tblite) with ALPB({s.solvent}); {s.role}, {s.n_electrons} electron(s); "
               f"potentials vs {ref}; {s.conformers.refine_lowest} conformers refined of "
-              f"{s.conformers.n_generate} generated; seed {s.seed}.")
+              f"{s.conformers.n_generate} generated; seed {s.seed}. Software: {_software()}; "
+              f"settings hash {s.result_hash()} (the key of the stored states).")
     safety = "".join(f"<li>{_e(t)}</li>" for t in SAFETY_NOTES)
     stamp = _dt.datetime.now().strftime("%Y-%m-%d %H:%M")
     return f"""<!DOCTYPE html>
