@@ -13,7 +13,13 @@ import pytest
 
 from redoxfront import columns as C
 from redoxfront.campaign import ComputeSettings, ConformerSettings, load_campaign
-from redoxfront.compute import candidate_task, compute_campaign, compute_candidate, compute_candidates
+from redoxfront.compute import (
+    candidate_task,
+    compute_campaign,
+    compute_candidate,
+    compute_candidates,
+    compute_status,
+)
 from redoxfront.potentials import potential_v, reduction_free_energy_ev
 from redoxfront.store import Store
 from redoxfront.structures import parse_candidate
@@ -74,6 +80,7 @@ def test_nitrobenzene_reduction_follows_hammett_sigma_p():
 
 def test_rerun_recomputes_nothing_and_settings_change_invalidates(tmp_path):
     camp = load_campaign(_campaign(tmp_path, SMALL[:2]))
+    assert compute_status(camp).pending == ["m0", "m1"]  # no store yet: everything pending
     first = compute_campaign(camp, progress=False)
     assert first.new_engine_calls > 0
     assert list(first.table[C.STATUS]) == ["ok", "ok"]
@@ -132,6 +139,11 @@ def test_killed_run_resumes_without_recomputing(tmp_path):
     con.close()
     finished = {smiles for smiles, n in states if n == 2}
     assert finished  # at least one candidate was whole when the run was killed
+    # the status command's view of the interrupted run agrees with the store
+    st = compute_status(load_campaign(folder))
+    assert len(st.done) == len(finished) and not st.failed
+    assert len(st.partial) == sum(n == 1 for _, n in states)
+    assert len(st.done) + len(st.partial) + len(st.pending) == 6
     report = compute_campaign(load_campaign(folder), progress=False)
     assert list(report.table[C.STATUS]) == ["ok"] * 6
     for o in report.outcomes:  # finished before the kill: read back, no engine call
@@ -181,6 +193,9 @@ def test_engine_failure_is_reported_and_batch_goes_on(tmp_path):
     assert "number of electrons" in status[0]
     assert status[1] == "ok"
     assert compute_campaign(camp, progress=False).new_engine_calls == 0  # failures are stored too
+    st = compute_status(camp)
+    assert st.done == ["m1"] and list(st.failed) == ["m0"] and not st.pending and not st.partial
+    assert st.failed["m0"] == status[0].removeprefix("failed: ")
     # the command names every failed candidate and why
     from click.testing import CliRunner
 
@@ -190,6 +205,8 @@ def test_engine_failure_is_reported_and_batch_goes_on(tmp_path):
     assert result.exit_code == 0
     assert "1 candidates computed, 1 failed" in result.output
     assert "failed: m0: discharged state: tblite GFN2-xTB failed" in result.output
+    status_out = CliRunner().invoke(main, ["status", str(tmp_path)]).output
+    assert "2 candidates: 1 done, 1 failed, 0 partly done, 0 pending; 0 input rows rejected" in status_out
 
 
 def test_charged_state_starts_from_the_vertical_point_already_computed(tmp_path):

@@ -103,6 +103,25 @@ def compute_command(campaign: Path, candidates: Path | None, out: Path | None, w
             click.echo(f"  failed: {o.candidate.id}: {o.failure}", err=True)
 
 
+@main.command("status")
+@CAMPAIGN_ARG
+@click.option("--candidates", type=click.Path(exists=True, path_type=Path), default=None,
+              help="Candidate file (CSV or SDF); default: inputs.candidates of the campaign.")
+@friendly_errors
+def status_command(campaign: Path, candidates: Path | None) -> None:
+    """How far the compute step has come: done, failed, partly done and pending candidates."""
+    from redoxfront.campaign import load_campaign
+    from redoxfront.compute import compute_status
+
+    st = compute_status(load_campaign(campaign), candidates_path=candidates)
+    total = len(st.done) + len(st.failed) + len(st.partial) + len(st.pending)
+    click.echo(f"{total} candidates: {len(st.done)} done, {len(st.failed)} failed, "
+               f"{len(st.partial)} partly done, {len(st.pending)} pending; "
+               f"{len(st.rejected)} input rows rejected")
+    for cid, reason in st.failed.items():
+        click.echo(f"  failed: {cid}: {reason}")
+
+
 @main.command("fade")
 @CAMPAIGN_ARG
 @click.option("--input", "input_path", type=click.Path(exists=True, path_type=Path), default=None,

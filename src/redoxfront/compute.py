@@ -371,7 +371,47 @@ def compute_campaign(
     )
 
 
+@dataclass(frozen=True)
+class ComputeStatus:
+    """How far the compute step of a campaign has come, read from its store."""
+
+    done: list[str]
+    failed: dict[str, str]
+    """Candidate id -> the stored failure reason."""
+    partial: list[str]
+    """Some redox states stored, not all (an interrupted run)."""
+    pending: list[str]
+    rejected: list[InputError]
+
+
+def compute_status(campaign: Campaign, *, candidates_path: str | Path | None = None) -> ComputeStatus:
+    """Count done, failed, partly done and pending candidates under the current settings."""
+    settings = campaign.compute
+    path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates)
+    candidates, problems = read_candidates(path, settings)
+    status = ComputeStatus([], {}, [], [], problems)
+    if not campaign.store_path.exists():
+        status.pending.extend(c.id for c in candidates)
+        return status
+    key_hash = settings.result_hash()
+    with Store(campaign.store_path) as store:
+        for c in candidates:
+            plan = redox_states(Chem.AddHs(Chem.MolFromSmiles(c.main_smiles)), c.role, c.n_electrons)
+            found = [store.state_status(c.main_smiles, s.name, key_hash) for s in plan]
+            failure = next((reason for stored, reason in found if reason), None)
+            stored = sum(f[0] for f in found)
+            if failure:
+                status.failed[c.id] = failure
+            elif stored == len(plan):
+                status.done.append(c.id)
+            elif stored:
+                status.partial.append(c.id)
+            else:
+                status.pending.append(c.id)
+    return status
+
+
 __all__ = [
-    "CandidateOutcome", "ComputeReport", "candidate_row", "compute_campaign", "compute_candidate",
+    "CandidateOutcome", "ComputeReport", "ComputeStatus", "compute_status", "candidate_row", "compute_campaign", "compute_candidate",
     "compute_candidates", "candidate_task",
 ]

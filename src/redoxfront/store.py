@@ -80,6 +80,14 @@ class Store:
         stored = self.get(smiles, state, settings_hash)
         return payload if stored is None else stored
 
+    def state_status(self, smiles: str, state: str, settings_hash: str) -> tuple[bool, str | None]:
+        """(stored?, failure reason or None) without reading the whole payload."""
+        row = self._con.execute(
+            "SELECT json_extract(payload, '$.failed') FROM states WHERE smiles=? AND state=? AND settings_hash=?",
+            (smiles, state, settings_hash),
+        ).fetchone()
+        return (False, None) if row is None else (True, row[0])
+
     def count(self, settings_hash: str | None = None) -> int:
         """Number of stored states (for one settings hash, if given)."""
         if settings_hash is None:
