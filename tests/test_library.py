@@ -4,6 +4,7 @@ import re
 from math import comb
 from pathlib import Path
 
+import pandas as pd
 import pytest
 from click.testing import CliRunner
 from rdkit import Chem
@@ -150,3 +151,23 @@ def test_joined_molecules_equal_the_same_molecules_written_out_by_hand():
                for a in subs for b in subs for c in subs}
     assert problems.empty
     assert set(table["smiles"]) == by_hand
+
+
+def test_labelled_substituents_inline_and_from_a_file(tmp_path: Path):
+    lib = LibrarySettings(scaffold="COc1ccc([*:1])cc1", substituents={"1": {"H": "H", "tBu": "C(C)(C)C"}})
+    table, _ = build_library(lib)
+    assert list(table["substituent_1"]) == ["H", "tBu"]
+    assert table.set_index("substituent_1").loc["tBu", "smiles"] == Chem.CanonSmiles("COc1ccc(C(C)(C)C)cc1")
+    # more substituents from a CSV (site, smiles, label); a missing label falls back to the SMILES
+    (tmp_path / "inputs").mkdir()
+    (tmp_path / "inputs" / "subs.csv").write_text("site,smiles,label\n1,OC,OMe\n1,C#N,\n")
+    (tmp_path / "campaign.toml").write_text(
+        '[library]\nscaffold = "COc1ccc([*:1])cc1"\nsubstituents_file = "inputs/subs.csv"\n'
+        '[library.substituents]\n1 = ["H"]\n')
+    out = CliRunner().invoke(main, ["library", str(tmp_path)])
+    assert "3 combinations, 3 distinct molecules" in out.output, out.output
+    written = pd.read_csv(tmp_path / "inputs" / "library.csv", keep_default_na=False)
+    assert list(written["substituent_1"]) == ["H", "OMe", "C#N"]
+    (tmp_path / "inputs" / "subs.csv").write_text("site,smiles,label\n1,,OMe\n")
+    bad = CliRunner().invoke(main, ["library", str(tmp_path)])
+    assert bad.exit_code == 2 and "subs.csv, line 2: site and smiles are needed" in bad.output

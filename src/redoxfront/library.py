@@ -14,8 +14,9 @@ from __future__ import annotations
 
 import itertools
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
+from typing import Any, Mapping
 
 import pandas as pd
 from rdkit import Chem, RDLogger
@@ -34,8 +35,13 @@ class LibrarySettings:
 
     scaffold: str = ""
     """SMILES with numbered attachment points [*:1], [*:2], ..."""
-    substituents: dict[str, tuple[str, ...]] = field(default_factory=dict)
-    """Per site number (as text, the TOML key), the substituent SMILES to try there."""
+    substituents: dict[str, Any] = field(default_factory=dict)
+    """Per site number (as text, the TOML key), the substituents to try there: a list of
+    SMILES, or a table of label = SMILES (the label goes into the ``substituent_<site>``
+    column instead of the SMILES)."""
+    substituents_file: str = ""
+    """A CSV with columns ``site``, ``smiles`` and optionally ``label``: more substituents,
+    relative to the campaign folder (read by :func:`library_for_campaign`)."""
     id_prefix: str = "lib"
     output: str = "inputs/library.csv"
     """Where the candidates table is written, relative to the campaign folder."""
@@ -128,10 +134,17 @@ def build_library(settings: LibrarySettings, *, progress: bool = False) -> tuple
         raise SettingsError(f"[library.substituents] site {extra[0]} is not an attachment point of the scaffold")
     choices = []
     for s in sites:
-        texts = given[str(s)]
-        if isinstance(texts, str) or not texts:
-            raise SettingsError(f"[library.substituents] site {s}: give a list of substituents, e.g. [\"H\", \"C\"]")
-        choices.append([(t.strip(), substituent_fragment(t, s)) for t in texts])
+        entries = given[str(s)]
+        if isinstance(entries, Mapping):
+            labelled = [(str(label), str(smiles)) for label, smiles in entries.items()]
+        elif isinstance(entries, (list, tuple)):
+            labelled = [(str(t).strip(), str(t)) for t in entries]
+        else:
+            labelled = []
+        if not labelled:
+            raise SettingsError(f"[library.substituents] site {s}: give a list of substituents, e.g. [\"H\", \"C\"], "
+                                "or a table of label = SMILES")
+        choices.append([(label, substituent_fragment(smiles, s)) for label, smiles in labelled])
     total = math.prod(len(c) for c in choices)
     width = len(str(total))
     rows, problems, seen = [], [], {}
@@ -166,9 +179,33 @@ def build_library(settings: LibrarySettings, *, progress: bool = False) -> tuple
     return pd.DataFrame(rows), pd.DataFrame(problems, columns=["id", *[f"substituent_{s}" for s in sites], "reason"])
 
 
+def _with_file(given: dict[str, Any], path: Path) -> dict[str, dict[str, str]]:
+    """The inline substituents plus those of a CSV file (site, smiles, label), as label tables."""
+    if not path.exists():
+        raise SettingsError(f"[library] substituents_file {path} does not exist")
+    table = pd.read_csv(path, dtype=str, keep_default_na=False)
+    missing = {"site", "smiles"} - set(table.columns)
+    if missing:
+        raise SettingsError(f"[library] substituents_file {path.name}: needs columns site and smiles "
+                            f"(and optionally label); missing {', '.join(sorted(missing))}")
+    out: dict[str, dict[str, str]] = {}
+    for site, entries in given.items():
+        out[str(site)] = (dict(entries) if isinstance(entries, Mapping)
+                          else {str(t).strip(): str(t) for t in entries})
+    for i, r in enumerate(table.to_dict("records"), start=2):  # line 1 is the header
+        site, smiles = r["site"].strip(), r["smiles"].strip()
+        if not site or not smiles:
+            raise SettingsError(f"[library] substituents_file {path.name}, line {i}: site and smiles are needed")
+        out.setdefault(site, {})[(r.get("label") or "").strip() or smiles] = smiles
+    return out
+
+
 def library_for_campaign(campaign: Campaign, *, progress: bool = True) -> tuple[Path, int, int, pd.DataFrame]:
     """Build the campaign's ``[library]`` and write it; returns (path, combinations, distinct, problems)."""
     settings = section_from_mapping(LibrarySettings, campaign.section("library"), "library")
+    if settings.substituents_file:
+        settings = replace(settings, substituents=_with_file(settings.substituents,
+                                                             campaign.path(settings.substituents_file)))
     if not settings.scaffold:
         raise SettingsError("[library] scaffold is missing; e.g. scaffold = \"COc1cc([*:1])c(OC)cc1[*:2]\"")
     table, problems = build_library(settings, progress=progress)
