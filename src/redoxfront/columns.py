@@ -23,6 +23,12 @@ def potential_uncalibrated(ref: str, step: int | None = None) -> str:
     return f"potential{s}_uncalibrated_v_vs_{ref}"
 
 
+STEP_SEPARATION = "potential_step_separation_uncalibrated_v"
+"""Two-electron carriers: how much harder the second step is than the first, V (second
+minus first for a catholyte, first minus second for an anolyte). Negative means potential
+inversion: the intermediate disproportionates and the two steps merge into one wave."""
+
+
 def potential_calibrated(ref: str) -> str:
     """Potential after linear calibration against measured values, V vs ``ref``."""
     return f"potential_calibrated_v_vs_{ref}"

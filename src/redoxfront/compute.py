@@ -198,6 +198,7 @@ def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[
     if len(steps) == 2:
         row[C.potential_uncalibrated(ref, 1)] = steps[0]
         row[C.potential_uncalibrated(ref, 2)] = steps[1]
+        row[C.STEP_SEPARATION] = (steps[1] - steps[0]) * (1 if cand.role == "catholyte" else -1)
     row["charge_discharged"] = first.charge
     row["charge_charged"] = last.charge
     row["multiplicity_discharged"] = first.multiplicity
