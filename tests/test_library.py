@@ -100,6 +100,10 @@ def test_run_builds_the_library_before_computing(tmp_path: Path):
     summary = run_campaign(tmp_path, progress=False, echo=lambda _: None)
     assert summary.lines[0].split()[:5] == ["library", "2", "combinations,", "2", "distinct"]
     assert "2 of 2 candidates computed" in summary.lines[1]
+    # nothing measured: calibration, model and ranking say they were skipped, and why
+    by_step = {line.split()[0]: line for line in summary.lines}
+    assert "skipped: no usable measured potentials" in by_step["calibrate"]
+    assert "skipped" in by_step["fit"] and "skipped" in by_step["rank"]
 
 
 def test_charged_products_get_balancing_counterions():
@@ -171,3 +175,19 @@ def test_labelled_substituents_inline_and_from_a_file(tmp_path: Path):
     (tmp_path / "inputs" / "subs.csv").write_text("site,smiles,label\n1,,OMe\n")
     bad = CliRunner().invoke(main, ["library", str(tmp_path)])
     assert bad.exit_code == 2 and "subs.csv, line 2: site and smiles are needed" in bad.output
+
+
+def test_the_phenothiazine_example_builds(tmp_path: Path):
+    # the example campaign shipped in examples/ stays valid: 4 x 3 x 3 combinations, the two
+    # ring sites (3 and 7 positions, both para to N) equivalent, so 4 x 6 distinct molecules
+    import shutil
+
+    from redoxfront.campaign import load_campaign
+    from redoxfront.library import library_for_campaign
+
+    src = Path(__file__).resolve().parents[1] / "examples" / "phenothiazine-library"
+    shutil.copy(src / "campaign.toml", tmp_path / "campaign.toml")
+    out, combos, distinct, problems = library_for_campaign(load_campaign(tmp_path), progress=False)
+    assert (combos, distinct, len(problems)) == (36, 24, 0)
+    shipped = pd.read_csv(src / "inputs" / "library.csv")
+    assert shipped.equals(pd.read_csv(out))  # the shipped table is what the settings build

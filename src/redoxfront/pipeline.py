@@ -68,9 +68,9 @@ def run_campaign(
         note("fade", "skipped: no [inputs] cycling files")
 
     table = calibrate_campaign(camp)
-    cal = table.attrs.get("calibration")
-    note("calibrate", "calibrated against measured potentials (results/calibration.json)" if cal
-         else "skipped: no [inputs] measured_potentials; potentials stay uncalibrated")
+    cal = table.attrs.get("calibration", {})
+    note("calibrate", f"calibrated against {cal['n_measured_used']} measured potentials (results/calibration.json)"
+         if cal.get("lines") else "skipped: no usable measured potentials; potentials stay uncalibrated")
 
     rates_given = camp.inputs.measured_rates or (camp.results_dir / "rates.csv").exists()
     if rates_given:
