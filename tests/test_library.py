@@ -104,6 +104,15 @@ def test_run_builds_the_library_before_computing(tmp_path: Path):
     by_step = {line.split()[0]: line for line in summary.lines}
     assert "skipped: no usable measured potentials" in by_step["calibrate"]
     assert "skipped" in by_step["fit"] and "skipped" in by_step["rank"]
+    # objectives that need no rate model are ranked without one (store read back: no new work)
+    with (tmp_path / "campaign.toml").open("a") as fh:
+        fh.write('[ranking]\nobjectives = ["cell_voltage", "molar_mass"]\nn_draws = 50\n'
+                 '[cell]\ncounter = "potential"\ncounter_potential_v = -1.8\n')
+    again = run_campaign(tmp_path, progress=False, echo=lambda _: None)
+    ranked_line = next(line for line in again.lines if line.startswith("rank"))
+    assert "2 candidates ranked" in ranked_line
+    ranking = pd.read_csv(tmp_path / "results" / "ranking.csv")
+    assert ranking["pareto_rank"].notna().all()
 
 
 def test_charged_products_get_balancing_counterions():

@@ -38,7 +38,7 @@ def run_campaign(
     from redoxfront.report import write_report
     from redoxfront.fade_step import fade_campaign
     from redoxfront.model_step import fit_campaign
-    from redoxfront.ranking import rank_campaign
+    from redoxfront.ranking import rank_campaign, ranking_objectives
 
     camp: Campaign = load_campaign(path)
     summary = RunSummary()
@@ -78,11 +78,14 @@ def run_campaign(
         stats = fit.statistics
         note("fit", f"model on {', '.join(fit.terms)}: R2 {stats.get('r2') or float('nan'):.3f}, "
                     f"Q2(LOO) {stats.get('q2_loo') or float('nan'):.3f} (results/model.json, results/predictions.csv)")
+    else:
+        note("fit", "skipped: no measured rates and no fitted fade rates")
+    needs_model = "half_life" in ranking_objectives(camp)
+    if rates_given or not needs_model:
         ranked = rank_campaign(camp, progress=progress)
         note("rank", f"{len(ranked)} candidates ranked (results/ranking.csv, results/picks.csv, results/figures/)")
     else:
-        note("fit", "skipped: no measured rates and no fitted fade rates")
-        note("rank", "skipped: half-lives need the rate model")
+        note("rank", "skipped: half-lives need the rate model (or rank on objectives without half_life)")
 
     note("report", f"written: {write_report(camp)}")
     return summary

@@ -176,6 +176,13 @@ def rank_table(table: pd.DataFrame, settings: RankingSettings, *, progress: bool
     return RankingResult(out, picks[keep], float(hv_fraction), knee_id, names)
 
 
+def ranking_objectives(campaign: "Campaign") -> tuple[str, ...]:
+    """The campaign's ranking objectives (validated ``[ranking] objectives``)."""
+    from redoxfront.campaign import section_from_mapping
+
+    return tuple(section_from_mapping(RankingSettings, campaign.section("ranking"), "ranking").objectives)
+
+
 def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFrame:
     """Rank a campaign's candidates: reads results/predictions.csv, writes
     results/ranking.csv, results/picks.csv, results/ranking_summary.json and the figures
@@ -190,7 +197,12 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
     settings = section_from_mapping(RankingSettings, campaign.section("ranking"), "ranking")
     src = campaign.results_dir / "predictions.csv"
     if not src.exists():
-        raise InputError("no predictions yet; run the rate-model step first to write it", source=str(src))
+        if "half_life" in settings.objectives:
+            raise InputError("no predictions yet; run the rate-model step first to write it, or rank on "
+                             "objectives without half_life", source=str(src))
+        src = campaign.results_dir / "descriptors.csv"  # no rate model needed for these objectives
+        if not src.exists():
+            raise InputError("no descriptor table yet; run the compute step first", source=str(src))
     try:
         table = pd.read_csv(src)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
