@@ -36,12 +36,22 @@ def atom_sasa(
     big = np.asarray(radii_angstrom, dtype=float) + probe_angstrom
     n = len(x)
     unit = sphere_points(n_points)
-    pts = (x[:, None, :] + big[:, None, None] * unit[None, :, :]).reshape(-1, 3)
-    owner = np.repeat(np.arange(n), n_points)
-    # every (test point, atom) pair closer than the largest enlarged radius, at once
-    pairs = cKDTree(pts).sparse_distance_matrix(cKDTree(x), big.max(), output_type="coo_matrix")
-    hit = (pairs.data < big[pairs.col]) & (pairs.col != owner[pairs.row])
-    buried = np.zeros(len(pts), dtype=bool)
-    buried[pairs.row[hit]] = True
-    share = 1.0 - buried.reshape(n, n_points).mean(axis=1)
+    # ordered pairs (i, j) of atoms whose enlarged spheres overlap, grouped by i
+    pairs = cKDTree(x).query_pairs(2.0 * big.max(), output_type="ndarray")
+    i = np.concatenate([pairs[:, 0], pairs[:, 1]])
+    j = np.concatenate([pairs[:, 1], pairs[:, 0]])
+    delta = x[i] - x[j]
+    d2 = (delta**2).sum(axis=1)
+    keep = d2 < (big[i] + big[j]) ** 2
+    order = np.argsort(i[keep], kind="stable")
+    i, j, delta, d2 = i[keep][order], j[keep][order], delta[keep][order], d2[keep][order]
+    # test point p of atom i lies at x_i + R_i u_p; it is inside atom j's sphere when
+    # |x_i - x_j|^2 + 2 R_i (x_i - x_j).u_p + R_i^2 < R_j^2: one matrix product for all pairs
+    inside = (d2[:, None] + 2.0 * big[i][:, None] * (delta @ unit.T) + big[i][:, None] ** 2
+              < big[j][:, None] ** 2)
+    buried = np.zeros((n, n_points), dtype=bool)
+    if len(i):
+        starts = np.flatnonzero(np.r_[True, i[1:] != i[:-1]])
+        buried[i[starts]] = np.logical_or.reduceat(inside, starts, axis=0)
+    share = 1.0 - buried.mean(axis=1)
     return 4.0 * np.pi * big**2 * share
