@@ -82,10 +82,14 @@ class Store:
 
     def state_status(self, smiles: str, state: str, settings_hash: str) -> tuple[bool, str | None]:
         """(stored?, failure reason or None) without reading the whole payload."""
-        row = self._con.execute(
-            "SELECT json_extract(payload, '$.failed') FROM states WHERE smiles=? AND state=? AND settings_hash=?",
-            (smiles, state, settings_hash),
-        ).fetchone()
+        try:
+            row = self._con.execute(
+                "SELECT json_extract(payload, '$.failed') FROM states WHERE smiles=? AND state=? AND settings_hash=?",
+                (smiles, state, settings_hash),
+            ).fetchone()
+        except sqlite3.OperationalError:  # an SQLite built without its JSON functions
+            payload = self.get(smiles, state, settings_hash)
+            return (False, None) if payload is None else (True, payload.get("failed"))
         return (False, None) if row is None else (True, row[0])
 
     def count(self, settings_hash: str | None = None) -> int:
