@@ -74,3 +74,4 @@ def test_run_every_step_and_report(tmp_path):
 
     assert f"tblite {version('tblite')}" in html
     assert f"settings hash {camp.compute.result_hash()}" in html
+    assert "<code>geometries.sdf</code>" in html and "<code>picks.csv</code>" in html  # files listed

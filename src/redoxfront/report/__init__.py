@@ -218,6 +218,7 @@ def render_report(campaign: Campaign) -> str:
 <h2>Decomposition-rate model</h2>{_model_section(res)}
 <h2>Calibration of potentials</h2>{_calibration_section(res)}
 <h2>Problems</h2>{_problems_section(res)}
+<h2>Files</h2>{_files_section(res)}
 <h2>Method</h2><p>{_e(method)}</p>
 <p class="muted">Potentials: E = -(G(red) - G(ox) + shift)/F - E_abs(SHE), shift {_e(s.ipea_shift_ev)} eV,
 E_abs(SHE) from '{_e(s.absolute_she)}'; then a linear calibration against measured potentials.
@@ -225,6 +226,28 @@ Cell energy density counts both tanks unless the campaign says otherwise. See th
 pages (docs/) for references.</p>
 </body></html>
 """
+
+
+RESULT_FILES: tuple[tuple[str, str], ...] = (
+    ("descriptors.csv", "every candidate: raw potentials, energies, descriptors, status"),
+    ("geometries.sdf", "lowest optimised conformer of every redox state (open in a molecular viewer)"),
+    ("input_problems.csv", "input rows that were rejected, with row, field and reason"),
+    ("rates.csv", "rate constants fitted from the cycling and decay files"),
+    ("calibration.json", "calibration lines, their statistics and prediction intervals"),
+    ("model.json", "the decomposition-rate model, reloadable"),
+    ("predictions.csv", "predicted rates with prediction intervals and the applicability domain"),
+    ("ranking.csv", "cell metrics, Pareto ranks and front probabilities of every candidate"),
+    ("picks.csv", "the suggested next experiments, in order"),
+)
+"""Files of ``results/`` a reader of the report may want next, with what each holds."""
+
+
+def _files_section(res: Path) -> str:
+    rows = "".join(f'<tr><td class="t"><code>{_e(name)}</code></td><td class="t">{_e(what)}</td></tr>'
+                   for name, what in RESULT_FILES if (res / name).exists())
+    if not rows:
+        return "<p>No result files yet.</p>"
+    return f'<p>Next to this report, in <code>results/</code>:</p><table>{rows}</table>'
 
 
 def write_report(campaign: Campaign) -> Path:
