@@ -255,24 +255,18 @@ def compute_candidates(
     workers = settings.workers if workers is None else workers
     key_hash = settings.result_hash()
     outcomes: dict[str, CandidateOutcome] = {}
-    known: dict[str, dict[str, dict]] = {}
-    with Store(store_path) as store:  # creates the file and schema before workers open it
-        for c in candidates:
-            plan = redox_states(Chem.AddHs(Chem.MolFromSmiles(c.main_smiles)), c.role, c.n_electrons)
-            found = {s.name: p for s in plan if (p := store.get(c.main_smiles, s.name, key_hash)) is not None}
-            if len(found) == len(plan) or any("failed" in p for p in found.values()):
-                outcomes[c.id] = candidate_task(c, settings, None, found, sections)  # read back only
-            else:
-                known[c.id] = found
-    # largest first: the pool's tail is then short jobs, not one long one
-    pending = sorted((c for c in candidates if c.id not in outcomes), key=_expected_cost, reverse=True)
-    # cluster workers may not see this file system: they get the known states and the
-    # results are stored here; local workers write each state to the store themselves
     local = dask_address is None
-    items = [(c, None if local else known[c.id]) for c in pending]
+    # cluster workers may not see this file system: they get the states already stored and
+    # the results are stored here; local workers read and write the store themselves.
+    # Candidates whose states are all stored go to the workers too: their descriptors are
+    # recomputed in parallel (after a change of sites, say), with no engine call.
+    with Store(store_path) as store:  # creates the file and schema before workers open it
+        known = {c.id: None if local else _stored_states(store, c, key_hash) for c in candidates}
+    # largest first: the pool's tail is then short jobs, not one long one
+    items = [(c, known[c.id]) for c in sorted(candidates, key=_expected_cost, reverse=True)]
     task_args = (settings, store_path if local else None, sections)
     if not items:
-        return [outcomes[c.id] for c in candidates], time.perf_counter() - t0
+        return [], time.perf_counter() - t0
     # local workers wrote their states already; only cluster results are stored here.
     # The parent holds no open store while the pool forks (SQLite handles must not cross fork).
     store = None if local else Store(store_path)
@@ -288,6 +282,18 @@ def compute_candidates(
         if store is not None:
             store.close()
     return [outcomes[c.id] for c in candidates], time.perf_counter() - t0
+
+
+def _plan(candidate: Candidate) -> list[RedoxState]:
+    """The candidate's redox states, discharged first."""
+    return redox_states(Chem.AddHs(Chem.MolFromSmiles(candidate.main_smiles)), candidate.role,
+                        candidate.n_electrons)
+
+
+def _stored_states(store: Store, candidate: Candidate, key_hash: str) -> dict[str, dict]:
+    """The candidate's redox-state payloads already in the store, by state name."""
+    return {s.name: p for s in _plan(candidate)
+            if (p := store.get(candidate.main_smiles, s.name, key_hash)) is not None}
 
 
 def candidate_task(
@@ -397,7 +403,7 @@ def compute_status(campaign: Campaign, *, candidates_path: str | Path | None = N
     key_hash = settings.result_hash()
     with Store(campaign.store_path) as store:
         for c in candidates:
-            plan = redox_states(Chem.AddHs(Chem.MolFromSmiles(c.main_smiles)), c.role, c.n_electrons)
+            plan = _plan(c)
             found = [store.state_status(c.main_smiles, s.name, key_hash) for s in plan]
             failure = next((reason for stored, reason in found if reason), None)
             stored = sum(f[0] for f in found)
