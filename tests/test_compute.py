@@ -14,11 +14,13 @@ import pytest
 from redoxfront import columns as C
 from redoxfront.campaign import ComputeSettings, ConformerSettings, load_campaign
 from redoxfront.compute import (
+    CONFORMER_ENTRY,
     candidate_task,
     compute_campaign,
     compute_candidate,
     compute_candidates,
     compute_status,
+    conformer_key,
 )
 from redoxfront.potentials import potential_v, reduction_free_energy_ev
 from redoxfront.store import Store
@@ -107,6 +109,15 @@ def test_rerun_recomputes_nothing_and_settings_change_invalidates(tmp_path):
     (tmp_path / "campaign.toml").write_text(text.replace("workers = 1", "workers = 1\nsolvent = 'water'"))
     water = compute_campaign(load_campaign(tmp_path), progress=False)
     assert water.new_engine_calls > 0
+    # ... but not the RDKit conformer search: the stored ensemble is reused, and gives the same
+    # numbers as a run that embeds afresh (a store of its own)
+    assert all(o.conformer_seconds == 0.0 for o in water.outcomes)
+    settings = load_campaign(tmp_path).compute
+    afresh, _ = compute_candidates([o.candidate for o in water.outcomes], settings,
+                                   tmp_path / "fresh.sqlite", workers=1, progress=False)
+    assert all(o.conformer_seconds > 0.0 for o in afresh)
+    col = C.potential_uncalibrated("fc")
+    assert [o.row[col] for o in afresh] == pytest.approx(list(water.table[col]), abs=1e-9)
 
 
 def test_killed_run_resumes_without_recomputing(tmp_path):
@@ -122,7 +133,8 @@ def test_killed_run_resumes_without_recomputing(tmp_path):
         if store_file.exists():
             try:  # read-only look, so the test does not take part in the writing
                 con = sqlite3.connect(f"file:{store_file}?mode=ro", uri=True, timeout=5)
-                stored_before = con.execute("SELECT COUNT(*) FROM states").fetchone()[0]
+                stored_before = con.execute(
+                    "SELECT COUNT(*) FROM states WHERE state != ?", (CONFORMER_ENTRY,)).fetchone()[0]
                 con.close()
             except sqlite3.Error:
                 stored_before = 0
@@ -135,7 +147,8 @@ def test_killed_run_resumes_without_recomputing(tmp_path):
     assert proc.returncode == -signal.SIGKILL, (tmp_path / "stderr.txt").read_text()  # killed mid-run
     assert stored_before >= 3
     con = sqlite3.connect(store_file)
-    states = con.execute("SELECT smiles, COUNT(*) FROM states GROUP BY smiles").fetchall()
+    states = con.execute("SELECT smiles, COUNT(*) FROM states WHERE state != ? GROUP BY smiles",
+                         (CONFORMER_ENTRY,)).fetchall()
     con.close()
     finished = {smiles for smiles, n in states if n == 2}
     assert finished  # at least one candidate was whole when the run was killed
@@ -149,7 +162,8 @@ def test_killed_run_resumes_without_recomputing(tmp_path):
     for o in report.outcomes:  # finished before the kill: read back, no engine call
         assert (o.new_engine_calls == 0) == (o.candidate.main_smiles in finished)
     with Store(store_file) as s:
-        assert s.count() == 12
+        assert s.count(load_campaign(folder).compute.result_hash()) == 12
+        assert s.count() == 12 + 6  # and one conformer ensemble per candidate
     # nothing stored twice, nothing lost
     con = sqlite3.connect(store_file)
     assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
@@ -164,7 +178,7 @@ def test_two_processes_on_one_store(tmp_path):
     outs = [p.communicate(timeout=300) for p in procs]
     assert [p.returncode for p in procs] == [0, 0], outs
     with Store(folder / "cache.sqlite") as s:
-        assert s.count() == 6
+        assert s.count() == 6 + 3  # 3 candidates x 2 states, and 3 conformer ensembles
     a = pd.read_csv(folder / "out0.csv").set_index("id").sort_index()
     b = pd.read_csv(folder / "out1.csv").set_index("id").sort_index()
     col = C.potential_uncalibrated("fc")
@@ -181,7 +195,8 @@ def test_dask_local_cluster_matches_local_run(tmp_path):
     col = C.potential_uncalibrated("fc")
     assert [o.row[col] for o in dask] == pytest.approx([o.row[col] for o in local], abs=1e-9)
     with Store(tmp_path / "b.sqlite") as s:  # the client stored what the cluster computed
-        assert s.count() == 4
+        assert s.count(settings.result_hash()) == 4
+        assert s.count(conformer_key(settings)) == 2
 
 
 def test_engine_failure_is_reported_and_batch_goes_on(tmp_path):

@@ -10,7 +10,7 @@ a rerun reads it back instead of computing it again.
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field, replace
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -33,6 +33,23 @@ from redoxfront.units import HARTREE_EV
 from redoxfront.xtb import Engine, EngineResult, make_engine
 
 
+CONFORMER_ENTRY = "conformer_ensemble"
+"""Store entry (in the place of a state name) for the RDKit conformer search of a candidate."""
+
+
+def conformer_key(settings: ComputeSettings) -> str:
+    """Store key of a conformer search: conformer settings, seed and RDKit version only, so a
+    change of solvent, method or optimiser reuses the ensemble instead of embedding again."""
+    import hashlib
+    import json
+
+    from rdkit import __version__ as rdkit_version
+
+    text = json.dumps({"conformers": asdict(settings.conformers), "seed": settings.seed,
+                       "rdkit": rdkit_version, "schema": 1}, sort_keys=True)
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
 @dataclass(frozen=True)
 class CandidateOutcome:
     """What one task returns: the states (or a failure) and what it cost."""
@@ -44,7 +61,8 @@ class CandidateOutcome:
     new_engine_calls: int
     new_engine_seconds: float
     payloads: dict[str, dict[str, Any]] = field(default_factory=dict)
-    """Freshly computed state payloads, for the caller to store (Dask path)."""
+    """Freshly computed state payloads (and the conformer ensemble under
+    :data:`CONFORMER_ENTRY`), for the caller to store (Dask path)."""
     task_seconds: float = 0.0
     """Wall time of this task in its worker, s."""
     conformer_seconds: float = 0.0
@@ -141,9 +159,22 @@ def compute_candidate(
                 neighbours = [plan[j] for j in (k + 1, k - 1) if 0 <= j < len(plan)]
                 try:
                     if k == 0:
-                        t_conf = time.perf_counter()
-                        starts, embedded = generate_conformers(mol_h, settings.conformers, settings.seed)
-                        conformer_s = time.perf_counter() - t_conf
+                        ensemble = known.get(CONFORMER_ENTRY)
+                        if ensemble is None and store is not None:
+                            ensemble = store.get(candidate.main_smiles, CONFORMER_ENTRY, conformer_key(settings))
+                        if ensemble is None:
+                            t_conf = time.perf_counter()
+                            found, n_embedded = generate_conformers(mol_h, settings.conformers, settings.seed)
+                            conformer_s = time.perf_counter() - t_conf
+                            ensemble = {"positions_angstrom": [np.round(x, POSITION_DECIMALS).tolist() for x in found],
+                                        "conformers_embedded": n_embedded}
+                            if store is not None:
+                                ensemble = store.put(candidate.main_smiles, CONFORMER_ENTRY,
+                                                     conformer_key(settings), ensemble)
+                            payloads[CONFORMER_ENTRY] = ensemble
+                        # the stored (rounded) geometries always, so a reused ensemble gives the same result
+                        starts = [np.asarray(x, dtype=float) for x in ensemble["positions_angstrom"]]
+                        embedded = int(ensemble["conformers_embedded"])
                     else:
                         starts = [c.positions_angstrom for c in results[plan[k - 1].name].conformers]
                     sr, verticals = _optimise_state(engine, numbers, starts, state, neighbours, settings,
@@ -261,7 +292,7 @@ def compute_candidates(
     # Candidates whose states are all stored go to the workers too: their descriptors are
     # recomputed in parallel (after a change of sites, say), with no engine call.
     with Store(store_path) as store:  # creates the file and schema before workers open it
-        known = {c.id: None if local else _stored_states(store, c, key_hash) for c in candidates}
+        known = {c.id: None if local else _stored_states(store, c, settings) for c in candidates}
     # largest first: the pool's tail is then short jobs, not one long one
     items = [(c, known[c.id]) for c in sorted(candidates, key=_expected_cost, reverse=True)]
     task_args = (settings, store_path if local else None, sections)
@@ -276,7 +307,8 @@ def compute_candidates(
                              progress=progress, desc="redox states"):
             if store is not None:
                 for state, payload in out.payloads.items():
-                    store.put(out.candidate.main_smiles, state, key_hash, payload)
+                    key = conformer_key(settings) if state == CONFORMER_ENTRY else key_hash
+                    store.put(out.candidate.main_smiles, state, key, payload)
             outcomes[out.candidate.id] = out
     finally:
         if store is not None:
@@ -290,10 +322,16 @@ def _plan(candidate: Candidate) -> list[RedoxState]:
                         candidate.n_electrons)
 
 
-def _stored_states(store: Store, candidate: Candidate, key_hash: str) -> dict[str, dict]:
-    """The candidate's redox-state payloads already in the store, by state name."""
-    return {s.name: p for s in _plan(candidate)
-            if (p := store.get(candidate.main_smiles, s.name, key_hash)) is not None}
+def _stored_states(store: Store, candidate: Candidate, settings: ComputeSettings) -> dict[str, dict]:
+    """The candidate's payloads already in the store: redox states by name, and its conformer
+    ensemble under :data:`CONFORMER_ENTRY`."""
+    key_hash = settings.result_hash()
+    found = {s.name: p for s in _plan(candidate)
+             if (p := store.get(candidate.main_smiles, s.name, key_hash)) is not None}
+    ensemble = store.get(candidate.main_smiles, CONFORMER_ENTRY, conformer_key(settings))
+    if ensemble is not None:
+        found[CONFORMER_ENTRY] = ensemble
+    return found
 
 
 def candidate_task(
@@ -419,6 +457,6 @@ def compute_status(campaign: Campaign, *, candidates_path: str | Path | None = N
 
 
 __all__ = [
-    "CandidateOutcome", "ComputeReport", "ComputeStatus", "compute_status", "candidate_row", "compute_campaign", "compute_candidate",
+    "CONFORMER_ENTRY", "CandidateOutcome", "ComputeReport", "ComputeStatus", "compute_status", "conformer_key", "candidate_row", "compute_campaign", "compute_candidate",
     "compute_candidates", "candidate_task",
 ]

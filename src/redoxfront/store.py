@@ -1,6 +1,8 @@
 """The SQLite store: every computed redox state, keyed by molecule, state and settings.
 
-Keys are (canonical main-fragment SMILES, state name, settings hash). The hash
+Keys are (canonical main-fragment SMILES, state name, settings hash); a candidate's RDKit
+conformer ensemble is stored the same way under the name ``conformer_ensemble`` and a key
+of the conformer settings alone (:func:`redoxfront.compute.conformer_key`). The hash
 covers every setting that changes energies or geometries
 (:meth:`~redoxfront.campaign.ComputeSettings.result_hash`), so a changed setting
 misses the cache and an unchanged one recomputes nothing. WAL journal mode lets
