@@ -19,10 +19,10 @@ from redoxfront.compute import (
     compute_campaign,
     compute_candidate,
     compute_candidates,
-    compute_status,
     conformer_key,
 )
 from redoxfront.potentials import potential_v, reduction_free_energy_ev
+from redoxfront.status import compute_status
 from redoxfront.store import Store
 from redoxfront.structures import parse_candidate
 

@@ -111,7 +111,7 @@ def compute_command(campaign: Path, candidates: Path | None, out: Path | None, w
 def status_command(campaign: Path, candidates: Path | None) -> None:
     """How far the compute step has come: done, failed, partly done and pending candidates."""
     from redoxfront.campaign import load_campaign
-    from redoxfront.compute import compute_status
+    from redoxfront.status import compute_status
 
     st = compute_status(load_campaign(campaign), candidates_path=candidates)
     total = len(st.done) + len(st.failed) + len(st.partial) + len(st.pending)

@@ -28,7 +28,9 @@ from redoxfront.optimize import optimize_geometry
 from redoxfront.potentials import potential_v, reduction_free_energy_ev
 from redoxfront.records import POSITION_DECIMALS, CandidateStates, ConformerResult, StateResult
 from redoxfront.store import Store
-from redoxfront.structures import Candidate, RedoxState, generate_conformers, read_candidates, redox_states
+from redoxfront.structures import (
+    Candidate, RedoxState, candidate_states, generate_conformers, read_candidates, redox_states,
+)
 from redoxfront.units import HARTREE_EV
 from redoxfront.xtb import Engine, EngineResult, make_engine
 
@@ -128,6 +130,38 @@ def _optimise_state(
     ), verticals
 
 
+def _conformer_starts(
+    candidate: Candidate,
+    mol_h: Chem.Mol,
+    settings: ComputeSettings,
+    store: Store | None,
+    known: dict[str, dict],
+    payloads: dict[str, dict[str, Any]],
+) -> tuple[list[np.ndarray], int, float]:
+    """Start geometries of the discharged state: the stored conformer ensemble, or a new one.
+
+    A new ensemble is written to ``store`` (local runs) and to ``payloads`` (for the caller
+    to store). Returns (geometries, conformers embedded, seconds spent embedding). The stored,
+    rounded geometries are used either way, so a reused ensemble gives the same result.
+    """
+    key = conformer_key(settings)
+    ensemble = known.get(CONFORMER_ENTRY)
+    if ensemble is None and store is not None:
+        ensemble = store.get(candidate.main_smiles, CONFORMER_ENTRY, key)
+    seconds = 0.0
+    if ensemble is None:
+        t0 = time.perf_counter()
+        found, n_embedded = generate_conformers(mol_h, settings.conformers, settings.seed)
+        seconds = time.perf_counter() - t0
+        ensemble = {"positions_angstrom": [np.round(x, POSITION_DECIMALS).tolist() for x in found],
+                    "conformers_embedded": n_embedded}
+        if store is not None:
+            ensemble = store.put(candidate.main_smiles, CONFORMER_ENTRY, key, ensemble)
+        payloads[CONFORMER_ENTRY] = ensemble
+    starts = [np.asarray(x, dtype=float) for x in ensemble["positions_angstrom"]]
+    return starts, int(ensemble["conformers_embedded"]), seconds
+
+
 def compute_candidate(
     candidate: Candidate, settings: ComputeSettings, store_path: str | None, stored: dict[str, dict] | None = None
 ) -> CandidateOutcome:
@@ -159,22 +193,8 @@ def compute_candidate(
                 neighbours = [plan[j] for j in (k + 1, k - 1) if 0 <= j < len(plan)]
                 try:
                     if k == 0:
-                        ensemble = known.get(CONFORMER_ENTRY)
-                        if ensemble is None and store is not None:
-                            ensemble = store.get(candidate.main_smiles, CONFORMER_ENTRY, conformer_key(settings))
-                        if ensemble is None:
-                            t_conf = time.perf_counter()
-                            found, n_embedded = generate_conformers(mol_h, settings.conformers, settings.seed)
-                            conformer_s = time.perf_counter() - t_conf
-                            ensemble = {"positions_angstrom": [np.round(x, POSITION_DECIMALS).tolist() for x in found],
-                                        "conformers_embedded": n_embedded}
-                            if store is not None:
-                                ensemble = store.put(candidate.main_smiles, CONFORMER_ENTRY,
-                                                     conformer_key(settings), ensemble)
-                            payloads[CONFORMER_ENTRY] = ensemble
-                        # the stored (rounded) geometries always, so a reused ensemble gives the same result
-                        starts = [np.asarray(x, dtype=float) for x in ensemble["positions_angstrom"]]
-                        embedded = int(ensemble["conformers_embedded"])
+                        starts, embedded, conformer_s = _conformer_starts(
+                            candidate, mol_h, settings, store, known, payloads)
                     else:
                         starts = [c.positions_angstrom for c in results[plan[k - 1].name].conformers]
                     sr, verticals = _optimise_state(engine, numbers, starts, state, neighbours, settings,
@@ -316,17 +336,11 @@ def compute_candidates(
     return [outcomes[c.id] for c in candidates], time.perf_counter() - t0
 
 
-def _plan(candidate: Candidate) -> list[RedoxState]:
-    """The candidate's redox states, discharged first."""
-    return redox_states(Chem.AddHs(Chem.MolFromSmiles(candidate.main_smiles)), candidate.role,
-                        candidate.n_electrons)
-
-
 def _stored_states(store: Store, candidate: Candidate, settings: ComputeSettings) -> dict[str, dict]:
     """The candidate's payloads already in the store: redox states by name, and its conformer
     ensemble under :data:`CONFORMER_ENTRY`."""
     key_hash = settings.result_hash()
-    found = {s.name: p for s in _plan(candidate)
+    found = {s.name: p for s in candidate_states(candidate)
              if (p := store.get(candidate.main_smiles, s.name, key_hash)) is not None}
     ensemble = store.get(candidate.main_smiles, CONFORMER_ENTRY, conformer_key(settings))
     if ensemble is not None:
@@ -416,47 +430,7 @@ def compute_campaign(
     )
 
 
-@dataclass(frozen=True)
-class ComputeStatus:
-    """How far the compute step of a campaign has come, read from its store."""
-
-    done: list[str]
-    failed: dict[str, str]
-    """Candidate id -> the stored failure reason."""
-    partial: list[str]
-    """Some redox states stored, not all (an interrupted run)."""
-    pending: list[str]
-    rejected: list[InputError]
-
-
-def compute_status(campaign: Campaign, *, candidates_path: str | Path | None = None) -> ComputeStatus:
-    """Count done, failed, partly done and pending candidates under the current settings."""
-    settings = campaign.compute
-    path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates)
-    candidates, problems = read_candidates(path, settings)
-    status = ComputeStatus([], {}, [], [], problems)
-    if not campaign.store_path.exists():
-        status.pending.extend(c.id for c in candidates)
-        return status
-    key_hash = settings.result_hash()
-    with Store(campaign.store_path) as store:
-        for c in candidates:
-            plan = _plan(c)
-            found = [store.state_status(c.main_smiles, s.name, key_hash) for s in plan]
-            failure = next((reason for stored, reason in found if reason), None)
-            stored = sum(f[0] for f in found)
-            if failure:
-                status.failed[c.id] = failure
-            elif stored == len(plan):
-                status.done.append(c.id)
-            elif stored:
-                status.partial.append(c.id)
-            else:
-                status.pending.append(c.id)
-    return status
-
-
 __all__ = [
-    "CONFORMER_ENTRY", "CandidateOutcome", "ComputeReport", "ComputeStatus", "compute_status", "conformer_key", "candidate_row", "compute_campaign", "compute_candidate",
+    "CONFORMER_ENTRY", "CandidateOutcome", "ComputeReport", "conformer_key", "candidate_row", "compute_campaign", "compute_candidate",
     "compute_candidates", "candidate_task",
 ]

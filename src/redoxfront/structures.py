@@ -208,6 +208,12 @@ def redox_states(mol_h: Chem.Mol, role: str, n_electrons: int) -> list[RedoxStat
     return states
 
 
+def candidate_states(candidate: Candidate) -> list[RedoxState]:
+    """The redox states of a candidate, discharged first (see :func:`redox_states`)."""
+    return redox_states(Chem.AddHs(Chem.MolFromSmiles(candidate.main_smiles)), candidate.role,
+                        candidate.n_electrons)
+
+
 def generate_conformers(
     mol_h: Chem.Mol, settings: ConformerSettings, seed: int
 ) -> tuple[list[np.ndarray], int]:
