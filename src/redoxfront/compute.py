@@ -73,6 +73,32 @@ class CandidateOutcome:
     """The candidate's row of the descriptor table (filled by :func:`candidate_task`)."""
 
 
+@dataclass(frozen=True)
+class _Checkpoints:
+    """Finished conformers of a state still in progress, kept in the store until the state is
+    whole, so a run killed in the middle of a state loses at most the conformer it was on."""
+
+    store: Store | None
+    smiles: str
+    state: str
+    key: str
+
+    def _name(self, i: int) -> str:
+        return f"{self.state}:conformer:{i}"
+
+    def get(self, i: int) -> ConformerResult | None:
+        payload = self.store.get(self.smiles, self._name(i), self.key) if self.store else None
+        return None if payload is None else ConformerResult.from_json(payload)
+
+    def put(self, i: int, conf: ConformerResult) -> None:
+        if self.store is not None:
+            self.store.put(self.smiles, self._name(i), self.key, conf.to_json())
+
+    def clear(self, n: int) -> None:
+        for i in range(n if self.store is not None else 0):
+            self.store.delete(self.smiles, self._name(i), self.key)
+
+
 def _optimise_state(
     engine: Engine,
     numbers: np.ndarray,
@@ -81,19 +107,26 @@ def _optimise_state(
     neighbours: list[RedoxState],
     settings: ComputeSettings,
     known_points: list[tuple[RedoxState, np.ndarray, EngineResult]] | None = None,
+    checkpoints: _Checkpoints | None = None,
 ) -> tuple[StateResult, list[tuple[RedoxState, np.ndarray, EngineResult]]]:
     """Optimise one redox state from each start geometry; add the vertical energies of ``neighbours``.
 
     ``known_points``: engine results already computed (state, geometry, result), such as
     the previous state's vertical points; one at a start geometry in this state is used
-    as the optimisation's first point instead of computing it again. Returns the state
-    and its own vertical points (for the next state).
+    as the optimisation's first point instead of computing it again. ``checkpoints``:
+    conformers finished by an earlier, interrupted run are read back from there, and each
+    new one is written there as soon as it is done. Returns the state and its own
+    vertical points (for the next state).
     """
     t0 = time.perf_counter()
     s0 = engine.stats.seconds
     confs = []
     verticals = []
     for i, start in enumerate(starts):
+        done = checkpoints.get(i) if checkpoints is not None else None
+        if done is not None:
+            confs.append(done)
+            continue
         spin = settings.spin_polarized and state.uhf > 0
         initial = next((r for st, xyz, r in known_points or ()
                         if st == state and np.array_equal(xyz, start)), None)
@@ -124,6 +157,8 @@ def _optimise_state(
             vertical_energies_eh=vertical_eh,
             spin_density=spin_density,
         ))
+        if checkpoints is not None:
+            checkpoints.put(i, confs[-1])
     return StateResult(
         state=state.name, charge=state.charge, uhf=state.uhf, conformers=tuple(confs),
         wall_time_s=time.perf_counter() - t0, engine_time_s=engine.stats.seconds - s0,
@@ -197,14 +232,17 @@ def compute_candidate(
                             candidate, mol_h, settings, store, known, payloads)
                     else:
                         starts = [c.positions_angstrom for c in results[plan[k - 1].name].conformers]
+                    checkpoints = _Checkpoints(store, candidate.main_smiles, state.name, key_hash)
                     sr, verticals = _optimise_state(engine, numbers, starts, state, neighbours, settings,
-                                                    verticals)
+                                                    verticals, checkpoints)
                     payload = sr.to_json()
                     payload["conformers_embedded"] = embedded
                 except (EngineError, InputError) as exc:
                     payload = {"failed": f"{state.name} state: {getattr(exc, 'reason', exc)}"}
                 if store is not None:
                     payload = store.put(candidate.main_smiles, state.name, key_hash, payload)
+                    _Checkpoints(store, candidate.main_smiles, state.name, key_hash).clear(
+                        settings.conformers.refine_lowest)  # the state is whole (or failed) now
                 payloads[state.name] = payload
             if "failed" in payload:
                 failure = payload["failed"]

@@ -7,7 +7,8 @@ covers every setting that changes energies or geometries
 (:meth:`~redoxfront.campaign.ComputeSettings.result_hash`), so a changed setting
 misses the cache and an unchanged one recomputes nothing. WAL journal mode lets
 several processes read while one writes; each write is its own short transaction,
-so a killed run loses at most the state it was computing.
+so a killed run loses at most the conformer it was optimising: finished conformers of a
+state in progress are kept as ``<state>:conformer:<i>`` entries until the state is whole.
 """
 
 from __future__ import annotations
@@ -93,6 +94,11 @@ class Store:
             payload = self.get(smiles, state, settings_hash)
             return (False, None) if payload is None else (True, payload.get("failed"))
         return (False, None) if row is None else (True, row[0])
+
+    def delete(self, smiles: str, state: str, settings_hash: str) -> None:
+        """Remove one entry (no error if it is not there)."""
+        self._con.execute("DELETE FROM states WHERE smiles=? AND state=? AND settings_hash=?",
+                          (smiles, state, settings_hash))
 
     def count(self, settings_hash: str | None = None) -> int:
         """Number of stored states (for one settings hash, if given)."""
