@@ -367,7 +367,7 @@ def compute_candidates(
                 for state, payload in out.payloads.items():
                     key = conformer_key(settings) if state == CONFORMER_ENTRY else key_hash
                     store.put(out.candidate.main_smiles, state, key, payload)
-            outcomes[out.candidate.id] = out
+            outcomes[out.candidate.id] = replace(out, payloads={})  # stored: keep memory flat
     finally:
         if store is not None:
             store.close()
@@ -406,7 +406,9 @@ def candidate_task(
         row.update(descriptors_for_candidate(mol_h, out.states, sections.get("sites"),
                                              sections.get("descriptors")))
     row.update(candidate.extra)  # user columns last, unchanged
-    return replace(out, row=row, task_seconds=time.perf_counter() - t0)
+    # a local worker stored its payloads already: do not ship them back (memory, IPC)
+    payloads = {} if store_path else out.payloads
+    return replace(out, row=row, payloads=payloads, task_seconds=time.perf_counter() - t0)
 
 
 def _expected_cost(candidate: Candidate) -> int:
