@@ -268,23 +268,29 @@ def test_two_electron_couple_has_both_vertical_energies_and_a_sane_reorganisatio
 
 def test_a_state_interrupted_between_conformers_keeps_the_finished_ones(tmp_path):
     # a run killed in the middle of a state left conformer 0 of the discharged state in the
-    # store: the resumed run reads it back instead of optimising it again, reaches the same
-    # result, and clears the checkpoint once the state is whole
-    settings = ComputeSettings(role="catholyte", conformers=ConformerSettings(n_generate=4, refine_lowest=2))
-    cand = parse_candidate({"id": "dmb", "smiles": "COc1ccc(OC)cc1"}, 2, settings)
-    whole = compute_candidate(cand, settings, str(tmp_path / "a.sqlite"))
+    # store: status calls the candidate partly done, the resumed run reads the conformer back
+    # instead of optimising it again, reaches the same result, and clears the checkpoint
+    folder = _campaign(tmp_path / "camp", ["COc1ccc(OC)cc1"])
+    (folder / "campaign.toml").write_text("[compute]\nrole = 'catholyte'\n[compute.conformers]\n"
+                                          "n_generate = 4\nrefine_lowest = 2\n")
+    camp = load_campaign(folder)
+    settings = camp.compute
+    cand = parse_candidate({"id": "m0", "smiles": "COc1ccc(OC)cc1"}, 2, settings)
+    whole = compute_candidate(cand, settings, str(tmp_path / "whole.sqlite"))
     first = whole.states.states["discharged"].conformers[0]
     key = settings.result_hash()
-    with Store(tmp_path / "b.sqlite") as s:
+    with Store(camp.store_path) as s:
         s.put(cand.main_smiles, CONFORMER_ENTRY, conformer_key(settings), whole.payloads[CONFORMER_ENTRY])
         s.put(cand.main_smiles, "discharged:conformer:0", key, first.to_json())
-    resumed = compute_candidate(cand, settings, str(tmp_path / "b.sqlite"))
+    assert compute_status(camp).partial == ["m0"]
+    resumed = compute_candidate(cand, settings, str(camp.store_path))
     assert resumed.states.states["discharged"].conformers[0].energy_eh == first.energy_eh  # read back
     assert resumed.new_engine_calls < whole.new_engine_calls
     assert resumed.conformer_seconds == 0.0  # the ensemble was stored too
     for name in ("discharged", "charged"):
         a, b = whole.states.states[name].conformers, resumed.states.states[name].conformers
         assert [c.energy_eh for c in b] == pytest.approx([c.energy_eh for c in a], abs=1e-7)
-    with Store(tmp_path / "b.sqlite") as s:
+    with Store(camp.store_path) as s:
         assert s.get(cand.main_smiles, "discharged:conformer:0", key) is None
         assert s.count(key) == 2  # the two whole states, nothing else under this key
+    assert compute_status(camp).done == ["m0"]

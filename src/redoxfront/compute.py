@@ -73,6 +73,11 @@ class CandidateOutcome:
     """The candidate's row of the descriptor table (filled by :func:`candidate_task`)."""
 
 
+def checkpoint_name(state: str, conformer: int) -> str:
+    """Store name of one finished conformer of a state still in progress."""
+    return f"{state}:conformer:{conformer}"
+
+
 @dataclass(frozen=True)
 class _Checkpoints:
     """Finished conformers of a state still in progress, kept in the store until the state is
@@ -84,7 +89,7 @@ class _Checkpoints:
     key: str
 
     def _name(self, i: int) -> str:
-        return f"{self.state}:conformer:{i}"
+        return checkpoint_name(self.state, i)
 
     def get(self, i: int) -> ConformerResult | None:
         payload = self.store.get(self.smiles, self._name(i), self.key) if self.store else None
@@ -471,6 +476,6 @@ def compute_campaign(
 
 
 __all__ = [
-    "CONFORMER_ENTRY", "CandidateOutcome", "ComputeReport", "conformer_key", "candidate_row", "compute_campaign", "compute_candidate",
+    "CONFORMER_ENTRY", "CandidateOutcome", "ComputeReport", "checkpoint_name", "conformer_key", "candidate_row", "compute_campaign", "compute_candidate",
     "compute_candidates", "candidate_task",
 ]

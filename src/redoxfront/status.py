@@ -2,7 +2,7 @@
 
 Nothing is computed: every candidate of the campaign is looked up in the store under the
 current settings and counted as done, failed (with the stored reason), partly done (some
-redox states stored: an interrupted run) or pending. Safe to run while a compute run is
+redox states or conformers stored: an interrupted run) or pending. Safe to run while a compute run is
 still writing (the store is in WAL mode).
 """
 
@@ -12,6 +12,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from redoxfront.campaign import Campaign
+from redoxfront.compute import checkpoint_name
 from redoxfront.errors import InputError
 from redoxfront.store import Store
 from redoxfront.structures import candidate_states, read_candidates
@@ -46,6 +47,8 @@ def compute_status(campaign: Campaign, *, candidates_path: str | Path | None = N
             found = [store.state_status(c.main_smiles, s.name, key_hash) for s in plan]
             failure = next((reason for stored, reason in found if reason), None)
             stored = sum(f[0] for f in found)
+            # a first state interrupted between conformers also counts as partly done
+            stored += store.state_status(c.main_smiles, checkpoint_name(plan[0].name, 0), key_hash)[0]
             if failure:
                 status.failed[c.id] = failure
             elif stored == len(plan):
