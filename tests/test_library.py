@@ -113,6 +113,9 @@ def test_run_builds_the_library_before_computing(tmp_path: Path):
     assert "2 candidates ranked" in ranked_line
     ranking = pd.read_csv(tmp_path / "results" / "ranking.csv")
     assert ranking["pareto_rank"].notna().all()
+    picks = pd.read_csv(tmp_path / "results" / "picks.csv", keep_default_na=False)
+    assert set(picks["substituent_1"]) <= {"H", "OC"}  # the picks say which building blocks they use
+    assert '<th class="t">substituent_1</th>' in (tmp_path / "results" / "report.html").read_text()
 
 
 def test_charged_products_get_balancing_counterions():

@@ -23,6 +23,15 @@ def potential_uncalibrated(ref: str, step: int | None = None) -> str:
     return f"potential{s}_uncalibrated_v_vs_{ref}"
 
 
+SUBSTITUENT_PREFIX = "substituent_"
+"""Library campaigns: ``substituent_<site>`` holds the substituent at each attachment point."""
+
+
+def substituent_column(site: int) -> str:
+    """Column naming the substituent at attachment point ``site`` of a library scaffold."""
+    return f"{SUBSTITUENT_PREFIX}{site}"
+
+
 STEP_SEPARATION = "potential_step_separation_uncalibrated_v"
 """Two-electron carriers: how much harder the second step is than the first, V (second
 minus first for a catholyte, first minus second for an anolyte). Negative means potential

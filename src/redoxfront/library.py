@@ -23,6 +23,7 @@ from rdkit import Chem, RDLogger
 from tqdm.auto import tqdm
 
 from redoxfront.campaign import Campaign, section_from_mapping
+from redoxfront.columns import substituent_column
 from redoxfront.errors import SettingsError
 
 HYDROGEN = "H"
@@ -154,7 +155,7 @@ def build_library(settings: LibrarySettings, *, progress: bool = False) -> tuple
                       disable=not progress or total < 5000)
         for k, combo in enumerate(combos, start=1):
             cid = f"{settings.id_prefix}-{k:0{width}d}"
-            labels = {f"substituent_{s}": text for s, (text, _) in zip(sites, combo)}
+            labels = {substituent_column(s): text for s, (text, _) in zip(sites, combo)}
             joined = ".".join([settings.scaffold] + [frag for _, frag in combo])
             mol = _parse(joined)
             try:
@@ -176,7 +177,7 @@ def build_library(settings: LibrarySettings, *, progress: bool = False) -> tuple
                          **labels})
     finally:
         RDLogger.EnableLog("rdApp.*")
-    return pd.DataFrame(rows), pd.DataFrame(problems, columns=["id", *[f"substituent_{s}" for s in sites], "reason"])
+    return pd.DataFrame(rows), pd.DataFrame(problems, columns=["id", *[substituent_column(s) for s in sites], "reason"])
 
 
 def _with_file(given: dict[str, Any], path: Path) -> dict[str, dict[str, str]]:

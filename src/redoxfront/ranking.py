@@ -173,6 +173,7 @@ def rank_table(table: pd.DataFrame, settings: RankingSettings, *, progress: bool
         col.CELL_VOLTAGE, col.CELL_VOLTAGE_LOW, col.CELL_VOLTAGE_HIGH, col.ENERGY_DENSITY,
         col.HALF_LIFE, col.HALF_LIFE_LOW, col.HALF_LIFE_HIGH, col.MOLAR_MASS, col.POTENTIAL_BASIS,
         col.DOMAIN, col.EXTRAPOLATING, col.RANKING_NOTE) if c in picks.columns]
+    keep += [c for c in picks.columns if c.startswith(col.SUBSTITUENT_PREFIX)]  # a library's building blocks
     return RankingResult(out, picks[keep], float(hv_fraction), knee_id, names)
 
 

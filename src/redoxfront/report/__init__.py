@@ -114,12 +114,14 @@ def _picks_section(res: Path, ref: str) -> str:
         C.HALF_LIFE_LOW, C.HALF_LIFE_HIGH, C.P_FRONT, C.PARETO_RANK, C.MOLAR_MASS,
         C.POTENTIAL_BASIS, C.DOMAIN,
     ) if c in picks.columns]
+    subs = [c for c in picks.columns if c.startswith(C.SUBSTITUENT_PREFIX)]  # library campaigns
+    keep = keep[:3] + subs + keep[3:]
     return (
         "<p>Suggested next candidates to make: the ones that most raise the expected hypervolume "
         "of the front, among those not yet measured. Half-life intervals are 95 % prediction "
         "intervals; <span class='warn'>extrapolating</span> rows lie outside the model's "
         "applicability domain (leverage above h* = 3(p+1)/n).</p>"
-        + _table(picks[keep], text_columns=(C.ID, C.SMILES, C.POTENTIAL_BASIS, C.DOMAIN))
+        + _table(picks[keep], text_columns=(C.ID, C.SMILES, C.POTENTIAL_BASIS, C.DOMAIN, *subs))
     )
 
 
