@@ -219,6 +219,7 @@ def test_engine_failure_is_reported_and_batch_goes_on(tmp_path):
     result = CliRunner().invoke(main, ["compute", str(tmp_path), "--quiet"])
     assert result.exit_code == 0
     assert "1 candidates computed, 1 failed" in result.output
+    assert "geometries.sdf" in result.output  # says where the results went
     assert "failed: m0: discharged state: tblite GFN2-xTB failed" in result.output
     status_out = CliRunner().invoke(main, ["status", str(tmp_path)]).output
     assert "2 candidates: 1 done, 1 failed, 0 partly done, 0 pending; 0 input rows rejected" in status_out

@@ -101,6 +101,9 @@ def compute_command(campaign: Path, candidates: Path | None, out: Path | None, w
     for o in report.outcomes:
         if o.failure:
             click.echo(f"  failed: {o.candidate.id}: {o.failure}", err=True)
+    where = out.parent if out else camp.results_dir
+    click.echo(f"written: {out or where / 'descriptors.csv'}, {where / 'geometries.sdf'}, "
+               f"{where / 'input_problems.csv'}")
 
 
 @main.command("status")
