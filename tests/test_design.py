@@ -96,13 +96,18 @@ def test_split_sizes_and_standardise(cloud):
         kennard_stone_split(cloud[:3], 0.1)
 
 
-def test_campaign_writes_picks(tmp_path):
-    (tmp_path / "results").mkdir()
+def _invented_campaign(folder, *descriptors: str) -> None:
+    """A campaign folder whose descriptor table holds 12 invented rows of random descriptors."""
+    (folder / "results").mkdir()
     rng = np.random.default_rng(1)
-    pd.DataFrame({"id": [f"dmb-{i}" for i in range(12)], "status": "ok",
-                  "sterimol_l": rng.normal(size=12), "buried_volume_percent": rng.normal(size=12)}
-                 ).to_csv(tmp_path / "results" / "descriptors.csv", index=False)
-    (tmp_path / "campaign.toml").write_text('name = "invented"\n')
+    table = {"id": [f"dmb-{i}" for i in range(12)], "status": "ok"}
+    table.update({name: rng.normal(size=12) for name in descriptors})
+    pd.DataFrame(table).to_csv(folder / "results" / "descriptors.csv", index=False)
+    (folder / "campaign.toml").write_text('name = "invented"\n')
+
+
+def test_campaign_writes_picks(tmp_path):
+    _invented_campaign(tmp_path, "sterimol_l", "buried_volume_percent")
     d = choose_training_for_campaign(tmp_path, 4, forced_in=["dmb-0"])
     out = pd.read_csv(tmp_path / "results" / "training_picks.csv")
     assert out[columns.ID].tolist() == list(d.picks)
@@ -115,12 +120,7 @@ def test_cli_choose_training(tmp_path):
 
     from redoxfront.cli import main
 
-    (tmp_path / "results").mkdir()
-    rng = np.random.default_rng(1)
-    pd.DataFrame({"id": [f"dmb-{i}" for i in range(12)], "status": "ok",
-                  "sterimol_l": rng.normal(size=12), "sterimol_b1": rng.normal(size=12)}
-                 ).to_csv(tmp_path / "results" / "descriptors.csv", index=False)
-    (tmp_path / "campaign.toml").write_text('name = "invented"\n')
+    _invented_campaign(tmp_path, "sterimol_l", "sterimol_b1")
     r = CliRunner().invoke(main, ["choose-training", str(tmp_path), "--count", "3", "--made", "dmb-5",
                                   "--skip", "dmb-1", "--columns", "sterimol_l,sterimol_b1"])
     assert r.exit_code == 0, r.output
