@@ -177,11 +177,16 @@ def rank_table(table: pd.DataFrame, settings: RankingSettings, *, progress: bool
     return RankingResult(out, picks[keep], float(hv_fraction), knee_id, names)
 
 
-def ranking_objectives(campaign: "Campaign") -> tuple[str, ...]:
-    """The campaign's ranking objectives (validated ``[ranking] objectives``)."""
+def ranking_settings(campaign: "Campaign") -> RankingSettings:
+    """The campaign's validated ``[ranking]`` section."""
     from redoxfront.campaign import section_from_mapping
 
-    return tuple(section_from_mapping(RankingSettings, campaign.section("ranking"), "ranking").objectives)
+    return section_from_mapping(RankingSettings, campaign.section("ranking"), "ranking")
+
+
+def ranking_objectives(campaign: "Campaign") -> tuple[str, ...]:
+    """The campaign's ranking objectives (``[ranking] objectives``)."""
+    return tuple(ranking_settings(campaign).objectives)
 
 
 def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFrame:
@@ -195,7 +200,7 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
     from redoxfront.errors import InputError
 
     cell_settings = section_from_mapping(CellSettings, campaign.section("cell"), "cell")
-    settings = section_from_mapping(RankingSettings, campaign.section("ranking"), "ranking")
+    settings = ranking_settings(campaign)
     src = campaign.results_dir / "predictions.csv"
     if not src.exists():
         if "half_life" in settings.objectives:

@@ -2,8 +2,8 @@
 
 Nothing is computed: every candidate of the campaign is looked up in the store under the
 current settings and counted as done, failed (with the stored reason), partly done (some
-redox states or conformers stored: an interrupted run) or pending. Safe to run while a compute run is
-still writing (the store is in WAL mode).
+redox states or conformers stored: an interrupted run) or pending. Safe to run while a
+compute run is still writing (the store is in WAL mode).
 """
 
 from __future__ import annotations
