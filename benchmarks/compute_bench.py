@@ -20,7 +20,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from redoxfront.executors import THREAD_VARIABLES  # noqa: E402 (imports no numpy)
+from redoxfront.campaign import THREAD_VARIABLES  # noqa: E402 (imports no numpy)
 
 for _var in THREAD_VARIABLES:
     os.environ.setdefault(_var, "1")
@@ -29,11 +29,12 @@ import numpy as np  # noqa: E402
 from rdkit import Chem  # noqa: E402
 
 from redoxfront.campaign import ComputeSettings  # noqa: E402
-from redoxfront.compute import compute_candidates  # noqa: E402
-from redoxfront.optimize import optimize_geometry, optimize_geometry_lbfgs_baseline  # noqa: E402
-from redoxfront.structures import generate_conformers, read_candidates, redox_states  # noqa: E402
+from redoxfront.compute.step import compute_candidates  # noqa: E402
+from redoxfront.engine.optimizer import optimize_geometry, optimize_geometry_lbfgs_baseline  # noqa: E402
+from redoxfront.candidates.conformers import generate_conformers  # noqa: E402
+from redoxfront.candidates.structures import read_candidates, redox_states  # noqa: E402
 from redoxfront.units import HARTREE_KCAL_PER_MOL  # noqa: E402
-from redoxfront.xtb import TbliteEngine  # noqa: E402
+from redoxfront.engine.xtb import TbliteEngine  # noqa: E402
 
 INVENTED = Path(__file__).resolve().parent / "invented_candidates.csv"
 

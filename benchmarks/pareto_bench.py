@@ -18,8 +18,8 @@ import tracemalloc
 
 import numpy as np
 
-from redoxfront import pareto as P
-from redoxfront import pareto_uncertainty as U
+from redoxfront.ranking import pareto as P
+from redoxfront.ranking import uncertainty as U
 
 
 def invented_candidates(n: int, seed: int = 1):

@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 import statsmodels.api as sm
 
-from redoxfront.term_search import search_terms
+from redoxfront.statistics.term_search import search_terms
 
 TARGET_S = 1.0
 N_ROWS, N_DESC, MAX_TERMS = 30, 60, 3

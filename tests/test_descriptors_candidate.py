@@ -19,7 +19,7 @@ from redoxfront.descriptors import (
 from redoxfront.descriptors.ensemble import boltzmann_weights, summarise
 from redoxfront.descriptors.sites import match_sites
 from redoxfront.errors import SettingsError
-from redoxfront.records import CandidateStates, ConformerResult, StateResult
+from redoxfront.engine.records import CandidateStates, ConformerResult, StateResult
 from redoxfront.units import HARTREE_EV, HARTREE_KCAL_PER_MOL
 
 # ---- sites ----------------------------------------------------------------------------

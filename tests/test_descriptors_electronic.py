@@ -13,7 +13,7 @@ from redoxfront.descriptors.electronic import (
     dipole_debye,
     reorganisation_energy,
 )
-from redoxfront.records import ConformerResult, StateResult
+from redoxfront.engine.records import ConformerResult, StateResult
 from redoxfront.units import ANGSTROM_BOHR, E_BOHR_DEBYE, HARTREE_EV
 
 tblite = pytest.importorskip("tblite.interface")

@@ -9,7 +9,7 @@ import pytest
 
 from redoxfront import columns as C
 from redoxfront.campaign import load_campaign
-from redoxfront.compute import compute_campaign
+from redoxfront.compute.step import compute_campaign
 from redoxfront.pipeline import run_campaign
 
 SMILES = ["COc1ccccc1", "Cc1ccc(C)cc1", "COc1ccc(C)cc1", "COc1ccc(OC)cc1", "COc1ccccc1OC",

@@ -22,6 +22,10 @@ from typing import Any, Mapping, TypeVar
 from redoxfront.errors import SettingsError
 from redoxfront.units import ABSOLUTE_SHE_V, REFERENCE_ELECTRODES_V_VS_SHE, reference_key
 
+THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+"""Environment variables that set BLAS/OpenMP threads per process ([compute] threads_per_worker);
+they must be set before numpy or the engine load, so this module imports neither."""
+
 T = TypeVar("T")
 
 # Named ALPB solvents parametrised for GFN2-xTB (list as documented for the xtb/tblite

@@ -38,7 +38,7 @@ def main() -> None:
     """Rank candidate redox-flow battery charge carriers before synthesis."""
     # parallel over molecules, not threads: one BLAS/OpenMP thread per process unless the
     # user says otherwise (set before numpy or the engine load; [compute] threads_per_worker)
-    from redoxfront.executors import THREAD_VARIABLES
+    from redoxfront.campaign import THREAD_VARIABLES
 
     for var in THREAD_VARIABLES:
         os.environ.setdefault(var, "1")
@@ -58,7 +58,7 @@ CAMPAIGN_ARG = click.argument(
 def library_command(campaign: Path) -> None:
     """Build a virtual library from the campaign's [library] scaffold and substituent lists."""
     from redoxfront.campaign import load_campaign
-    from redoxfront.library import library_for_campaign
+    from redoxfront.candidates.library import library_for_campaign
 
     out, combos, distinct, problems = library_for_campaign(load_campaign(campaign))
     for _, p in problems.iterrows():
@@ -85,7 +85,7 @@ def compute_command(campaign: Path, candidates: Path | None, out: Path | None, w
                     cluster: str | None, potentials_only: bool, quiet: bool) -> None:
     """Optimise both redox states of every candidate and write uncalibrated potentials."""
     from redoxfront.campaign import load_campaign
-    from redoxfront.compute import compute_campaign
+    from redoxfront.compute.step import compute_campaign
 
     camp = load_campaign(campaign)
     report = compute_campaign(camp, candidates_path=candidates, out_path=out, workers=workers,
@@ -114,7 +114,7 @@ def compute_command(campaign: Path, candidates: Path | None, out: Path | None, w
 def status_command(campaign: Path, candidates: Path | None) -> None:
     """How far the compute step has come: done, failed, partly done and pending candidates."""
     from redoxfront.campaign import load_campaign
-    from redoxfront.status import compute_status
+    from redoxfront.compute.status import compute_status
 
     st = compute_status(load_campaign(campaign), candidates_path=candidates)
     total = len(st.done) + len(st.failed) + len(st.partial) + len(st.pending)
@@ -137,7 +137,7 @@ def status_command(campaign: Path, candidates: Path | None) -> None:
 def fade_command(campaign: Path, input_path: Path | None, out: Path | None, quiet: bool) -> None:
     """Fit capacity fade / decay kinetics and write the rate table (rates.csv)."""
     from redoxfront.campaign import load_campaign
-    from redoxfront.fade_step import fade_campaign
+    from redoxfront.fade.step import fade_campaign
 
     rates = fade_campaign(load_campaign(campaign), input_path=input_path, out_dir=out,
                           progress=not quiet)
@@ -156,7 +156,7 @@ def fade_command(campaign: Path, input_path: Path | None, out: Path | None, quie
 def calibrate_command(campaign: Path) -> None:
     """Calibrate computed potentials against measured ones (adds columns to descriptors.csv)."""
     from redoxfront import columns
-    from redoxfront.calibration import calibrate_campaign
+    from redoxfront.statistics.calibration import calibrate_campaign
     from redoxfront.campaign import load_campaign
 
     table = calibrate_campaign(load_campaign(campaign))
@@ -179,7 +179,7 @@ def calibrate_command(campaign: Path) -> None:
 def fit_command(campaign: Path) -> None:
     """Fit the decomposition-rate model, validate it and predict every candidate."""
     from redoxfront.campaign import load_campaign
-    from redoxfront.model_step import fit_campaign
+    from redoxfront.statistics.step import fit_campaign
 
     click.echo(fit_campaign(load_campaign(campaign)).text())
 
@@ -196,7 +196,7 @@ def fit_command(campaign: Path) -> None:
 def choose_training_command(campaign: Path, k: int, made: tuple[str, ...], skip: tuple[str, ...],
                             cols: str | None) -> None:
     """Pick which candidates to make first so the training set spans descriptor space."""
-    from redoxfront.design import choose_training_for_campaign
+    from redoxfront.statistics.training_set import choose_training_for_campaign
 
     design = choose_training_for_campaign(
         campaign, k, made, skip, [c.strip() for c in cols.split(",")] if cols else None
@@ -219,7 +219,7 @@ def rank_command(campaign: Path, quiet: bool) -> None:
     """Cell metrics, trade-off front, probability on the front and next experiments."""
     from redoxfront import columns
     from redoxfront.campaign import load_campaign
-    from redoxfront.ranking import rank_campaign
+    from redoxfront.ranking.step import rank_campaign
 
     table = rank_campaign(load_campaign(campaign), progress=not quiet)
     ranked = table[columns.PARETO_RANK].notna()

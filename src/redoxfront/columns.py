@@ -81,7 +81,7 @@ ENERGY_DENSITY = "energy_density_wh_per_l"
 PARETO_RANK = "pareto_rank"
 P_FRONT = "probability_on_front"
 
-# --- cell metrics and ranking (cell.py, pareto.py) -----------------------------
+# --- cell metrics and ranking (redoxfront.ranking) -----------------------------
 MEASURED = "measured"
 """True when the candidate's decomposition rate has been measured (not suggested again)."""
 SOLUBILITY = "solubility_mol_per_l"
@@ -146,7 +146,7 @@ def conformers_used_column(state: str) -> str:
     return f"n_conformers_used_{state}"
 
 
-# ---- fade step: per-cycle table (results/fade_cycles.csv, redoxfront.cycling) ----
+# ---- fade step: per-cycle table (results/fade_cycles.csv, redoxfront.fade.files) ----
 CYCLE = "cycle"
 """Cycle number as counted by the cycler (renumbered to keep increasing after a restart)."""
 TIME_H = "time_h"
@@ -162,7 +162,7 @@ USED = "used"
 """False for points set aside by the clean-up rules (reason in :data:`NOTE`)."""
 NOTE = "note"
 
-# ---- fade step: rate table (results/rates.csv, redoxfront.fade_step) ---------------
+# ---- fade step: rate table (results/rates.csv, redoxfront.fade.step) ---------------
 K_FIRST = "k_per_h"
 """Decomposition rate constant of the charged species, first order, 1/h."""
 K_SECOND = "k_l_per_mol_per_h"
@@ -201,7 +201,7 @@ RATE_TABLE_COLUMNS: tuple[str, ...] = (
 ``log10_k_per_h`` (decomposition of the charged species, 1/h); second-order fits
 also fill ``log10_k_l_per_mol_per_h`` (L/(mol h)) when c0 is known."""
 
-# ---- fade step: model comparison (results/fade_models.csv, redoxfront.fade) ----------
+# ---- fade step: model comparison (results/fade_models.csv, redoxfront.fade.rate_laws) ----------
 FADE_CHOSEN = "chosen"
 """True for the rate law chosen for the dataset (lowest AICc among the allowed ones)."""
 FADE_N_PARAMS = "n_params"

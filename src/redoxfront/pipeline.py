@@ -33,12 +33,12 @@ def run_campaign(
     echo: Callable[[str], None] = print,
 ) -> RunSummary:
     """Run every step that has its inputs; return a summary (also echoed as it goes)."""
-    from redoxfront.calibration import calibrate_campaign
-    from redoxfront.compute import compute_campaign
+    from redoxfront.statistics.calibration import calibrate_campaign
+    from redoxfront.compute.step import compute_campaign
     from redoxfront.report import write_report
-    from redoxfront.fade_step import fade_campaign
-    from redoxfront.model_step import fit_campaign
-    from redoxfront.ranking import rank_campaign, ranking_objectives
+    from redoxfront.fade.step import fade_campaign
+    from redoxfront.statistics.step import fit_campaign
+    from redoxfront.ranking.step import rank_campaign, ranking_objectives
 
     camp: Campaign = load_campaign(path)
     summary = RunSummary()
@@ -48,7 +48,7 @@ def run_campaign(
         echo(summary.lines[-1])
 
     if camp.section("library"):
-        from redoxfront.library import library_for_campaign
+        from redoxfront.candidates.library import library_for_campaign
 
         out, combos, distinct, problems = library_for_campaign(camp, progress=progress)
         note("library", f"{combos} combinations, {distinct} distinct molecules, {len(problems)} left out ({out})")

@@ -4,7 +4,7 @@ Units are in every column name (``_angstrom``, ``_angstrom2``, ``_percent``, ``_
 ``_debye``, ``_e``); spin densities are in electrons (alpha - beta).
 
 :func:`descriptors_for_candidate` turns the computed redox states of one candidate
-(:class:`redoxfront.records.CandidateStates`) into one flat row: per named site
+(:class:`redoxfront.engine.records.CandidateStates`) into one flat row: per named site
 (campaign ``[sites]``) Sterimol L/B1/B5, ring-plane clearance, percent buried volume,
 accessible surface area, spin density and partial charges; per candidate the largest
 spin density on a carbon, the spin-weighted exposure, HOMO/LUMO/gap, dipole moment,
@@ -42,7 +42,7 @@ from redoxfront.descriptors.sites import (
 from redoxfront.descriptors.sterimol import substituent_atoms, sterimol, vdw_radii
 from redoxfront.descriptors.surface import atom_sasa
 from redoxfront.errors import RedoxfrontError
-from redoxfront.records import (
+from redoxfront.engine.records import (
     STATE_CHARGED,
     STATE_DISCHARGED,
     STATE_INTERMEDIATE,

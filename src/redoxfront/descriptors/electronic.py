@@ -19,7 +19,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from redoxfront.records import StateResult
+from redoxfront.engine.records import StateResult
 from redoxfront.units import ANGSTROM_BOHR, E_BOHR_DEBYE, HARTREE_EV
 
 
@@ -38,7 +38,7 @@ def atomic_spin_populations(
     Positions are converted to bohr with :data:`redoxfront.units.ANGSTROM_BOHR`.
     Raises EngineError when the engine fails.
     """
-    from redoxfront.xtb import TbliteEngine
+    from redoxfront.engine.xtb import TbliteEngine
 
     engine = TbliteEngine(method=method, solvent=solvent)
     result = engine.compute(numbers, positions_angstrom, int(charge), int(uhf), spin_polarized=True)

@@ -1,0 +1,482 @@
+"""The compute step: candidates to optimised redox states and uncalibrated potentials.
+
+Per candidate: conformer ensemble (RDKit) -> GFN-xTB + ALPB optimisation of the
+lowest K conformers in the discharged state -> the next redox state optimised from
+each of those geometries -> vertical single points -> lowest adiabatic energies ->
+potentials. Every state is stored in the SQLite store as soon as it is done;
+a rerun reads it back instead of computing it again.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import asdict, dataclass, field, replace
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from rdkit import Chem
+
+from redoxfront import columns as C
+from redoxfront.campaign import Campaign, ComputeSettings
+from redoxfront.errors import EngineError, InputError
+from redoxfront.descriptors import descriptors_for_candidate
+from redoxfront.compute.executors import map_tasks
+from redoxfront.compute.geometries import write_geometries
+from redoxfront.engine.optimizer import optimize_geometry
+from redoxfront.engine.potentials import potential_v, reduction_free_energy_ev
+from redoxfront.engine.records import POSITION_DECIMALS, CandidateStates, ConformerResult, StateResult
+from redoxfront.compute.store import Store
+from redoxfront.candidates.conformers import generate_conformers
+from redoxfront.candidates.structures import (
+    Candidate, RedoxState, candidate_states, read_candidates, redox_states,
+)
+from redoxfront.units import HARTREE_EV
+from redoxfront.engine.xtb import Engine, EngineResult, make_engine
+
+
+CONFORMER_ENTRY = "conformer_ensemble"
+"""Store entry (in the place of a state name) for the RDKit conformer search of a candidate."""
+
+
+def conformer_key(settings: ComputeSettings) -> str:
+    """Store key of a conformer search: conformer settings, seed and RDKit version only, so a
+    change of solvent, method or optimiser reuses the ensemble instead of embedding again."""
+    import hashlib
+    import json
+
+    from rdkit import __version__ as rdkit_version
+
+    text = json.dumps({"conformers": asdict(settings.conformers), "seed": settings.seed,
+                       "rdkit": rdkit_version, "schema": 1}, sort_keys=True)
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+@dataclass(frozen=True)
+class CandidateOutcome:
+    """What one task returns: the states (or a failure) and what it cost."""
+
+    candidate: Candidate
+    states: CandidateStates | None
+    failure: str | None
+    conformers_embedded: int
+    new_engine_calls: int
+    new_engine_seconds: float
+    payloads: dict[str, dict[str, Any]] = field(default_factory=dict)
+    """Freshly computed state payloads (and the conformer ensemble under
+    :data:`CONFORMER_ENTRY`), for the caller to store (Dask path)."""
+    task_seconds: float = 0.0
+    """Wall time of this task in its worker, s."""
+    conformer_seconds: float = 0.0
+    """Of that, the RDKit conformer search (embedding, MMFF94, pruning), s."""
+    row: dict[str, Any] = field(default_factory=dict)
+    """The candidate's row of the descriptor table (filled by :func:`candidate_task`)."""
+
+
+def checkpoint_name(state: str, conformer: int) -> str:
+    """Store name of one finished conformer of a state still in progress."""
+    return f"{state}:conformer:{conformer}"
+
+
+@dataclass(frozen=True)
+class _Checkpoints:
+    """Finished conformers of a state still in progress, kept in the store until the state is
+    whole, so a run killed in the middle of a state loses at most the conformer it was on."""
+
+    store: Store | None
+    smiles: str
+    state: str
+    key: str
+
+    def _name(self, i: int) -> str:
+        return checkpoint_name(self.state, i)
+
+    def get(self, i: int) -> ConformerResult | None:
+        payload = self.store.get(self.smiles, self._name(i), self.key) if self.store else None
+        return None if payload is None else ConformerResult.from_json(payload)
+
+    def put(self, i: int, conf: ConformerResult) -> None:
+        if self.store is not None:
+            self.store.put(self.smiles, self._name(i), self.key, conf.to_json())
+
+    def clear(self, n: int) -> None:
+        for i in range(n if self.store is not None else 0):
+            self.store.delete(self.smiles, self._name(i), self.key)
+
+
+def _optimise_state(
+    engine: Engine,
+    numbers: np.ndarray,
+    starts: list[np.ndarray],
+    state: RedoxState,
+    neighbours: list[RedoxState],
+    settings: ComputeSettings,
+    known_points: list[tuple[RedoxState, np.ndarray, EngineResult]] | None = None,
+    checkpoints: _Checkpoints | None = None,
+) -> tuple[StateResult, list[tuple[RedoxState, np.ndarray, EngineResult]]]:
+    """Optimise one redox state from each start geometry; add the vertical energies of ``neighbours``.
+
+    ``known_points``: engine results already computed (state, geometry, result), such as
+    the previous state's vertical points; one at a start geometry in this state is used
+    as the optimisation's first point instead of computing it again. ``checkpoints``:
+    conformers finished by an earlier, interrupted run are read back from there, and each
+    new one is written there as soon as it is done. Returns the state and its own
+    vertical points (for the next state).
+    """
+    t0 = time.perf_counter()
+    s0 = engine.stats.seconds
+    confs = []
+    verticals = []
+    for i, start in enumerate(starts):
+        done = checkpoints.get(i) if checkpoints is not None else None
+        if done is not None:
+            confs.append(done)
+            continue
+        spin = settings.spin_polarized and state.uhf > 0
+        initial = next((r for st, xyz, r in known_points or ()
+                        if st == state and np.array_equal(xyz, start)), None)
+        opt = optimize_geometry(engine, numbers, start, state.charge, state.uhf, settings.optimizer,
+                                spin_polarized=spin, initial=initial)
+        xyz = opt.positions_angstrom.round(POSITION_DECIMALS)  # the geometry as stored
+        vertical_eh = {}
+        for other in neighbours:
+            vert = engine.compute(numbers, xyz, other.charge, other.uhf,
+                                  spin_polarized=settings.spin_polarized and other.uhf > 0)
+            verticals.append((other, xyz, vert))
+            vertical_eh[other.name] = vert.energy_eh
+        r = opt.result
+        spin_density = r.spin_populations
+        if state.uhf > 0 and spin_density is None:  # spin density always from a spin-polarised point
+            spin_density = engine.compute(numbers, xyz, state.charge, state.uhf,
+                                          spin_polarized=True).spin_populations
+        confs.append(ConformerResult(
+            positions_angstrom=xyz,
+            energy_eh=r.energy_eh,
+            charges=r.charges,
+            homo_eh=r.homo_eh,
+            lumo_eh=r.lumo_eh,
+            dipole_au=r.dipole_au,
+            gradient_calls=opt.gradient_calls,
+            converged=opt.converged,
+            source_conformer=i,
+            vertical_energies_eh=vertical_eh,
+            spin_density=spin_density,
+        ))
+        if checkpoints is not None:
+            checkpoints.put(i, confs[-1])
+    return StateResult(
+        state=state.name, charge=state.charge, uhf=state.uhf, conformers=tuple(confs),
+        wall_time_s=time.perf_counter() - t0, engine_time_s=engine.stats.seconds - s0,
+    ), verticals
+
+
+def _conformer_starts(
+    candidate: Candidate,
+    mol_h: Chem.Mol,
+    settings: ComputeSettings,
+    store: Store | None,
+    known: dict[str, dict],
+    payloads: dict[str, dict[str, Any]],
+) -> tuple[list[np.ndarray], int, float]:
+    """Start geometries of the discharged state: the stored conformer ensemble, or a new one.
+
+    A new ensemble is written to ``store`` (local runs) and to ``payloads`` (for the caller
+    to store). Returns (geometries, conformers embedded, seconds spent embedding). The stored,
+    rounded geometries are used either way, so a reused ensemble gives the same result.
+    """
+    key = conformer_key(settings)
+    ensemble = known.get(CONFORMER_ENTRY)
+    if ensemble is None and store is not None:
+        ensemble = store.get(candidate.main_smiles, CONFORMER_ENTRY, key)
+    seconds = 0.0
+    if ensemble is None:
+        t0 = time.perf_counter()
+        found, n_embedded = generate_conformers(mol_h, settings.conformers, settings.seed)
+        seconds = time.perf_counter() - t0
+        ensemble = {"positions_angstrom": [np.round(x, POSITION_DECIMALS).tolist() for x in found],
+                    "conformers_embedded": n_embedded}
+        if store is not None:
+            ensemble = store.put(candidate.main_smiles, CONFORMER_ENTRY, key, ensemble)
+        payloads[CONFORMER_ENTRY] = ensemble
+    starts = [np.asarray(x, dtype=float) for x in ensemble["positions_angstrom"]]
+    return starts, int(ensemble["conformers_embedded"]), seconds
+
+
+def compute_candidate(
+    candidate: Candidate, settings: ComputeSettings, store_path: str | None, stored: dict[str, dict] | None = None
+) -> CandidateOutcome:
+    """Compute (or read back) every redox state of one candidate.
+
+    ``store_path``: write each state to this store as soon as it is done (local runs).
+    ``stored``: payloads already known for this candidate (read by the caller).
+    """
+    t_start = time.perf_counter()
+    conformer_s = 0.0
+    key_hash = settings.result_hash()
+    store = Store(store_path) if store_path else None
+    known = dict(stored or {})
+    engine = make_engine(settings.engine, settings.method, settings.solvent)
+    payloads: dict[str, dict[str, Any]] = {}
+    embedded = 0
+    mol_h = Chem.AddHs(Chem.MolFromSmiles(candidate.main_smiles))
+    numbers = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
+    plan = redox_states(mol_h, candidate.role, candidate.n_electrons)
+    results: dict[str, StateResult] = {}
+    verticals: list = []  # the last computed state's vertical points: the next state starts there
+    failure = None
+    try:
+        for k, state in enumerate(plan):
+            payload = known.get(state.name)
+            if payload is None and store is not None:
+                payload = store.get(candidate.main_smiles, state.name, key_hash)
+            if payload is None:
+                neighbours = [plan[j] for j in (k + 1, k - 1) if 0 <= j < len(plan)]
+                try:
+                    if k == 0:
+                        starts, embedded, conformer_s = _conformer_starts(
+                            candidate, mol_h, settings, store, known, payloads)
+                    else:
+                        starts = [c.positions_angstrom for c in results[plan[k - 1].name].conformers]
+                    checkpoints = _Checkpoints(store, candidate.main_smiles, state.name, key_hash)
+                    sr, verticals = _optimise_state(engine, numbers, starts, state, neighbours, settings,
+                                                    verticals, checkpoints)
+                    payload = sr.to_json()
+                    payload["conformers_embedded"] = embedded
+                except (EngineError, InputError) as exc:
+                    payload = {"failed": f"{state.name} state: {getattr(exc, 'reason', exc)}"}
+                if store is not None:
+                    payload = store.put(candidate.main_smiles, state.name, key_hash, payload)
+                    _Checkpoints(store, candidate.main_smiles, state.name, key_hash).clear(
+                        settings.conformers.refine_lowest)  # the state is whole (or failed) now
+                payloads[state.name] = payload
+            if "failed" in payload:
+                failure = payload["failed"]
+                break
+            if k == 0:
+                embedded = int(payload.get("conformers_embedded", 0))
+            results[state.name] = StateResult.from_json(payload)
+    finally:
+        if store is not None:
+            store.close()
+    states = None if failure else CandidateStates(candidate.id, candidate.main_smiles, results)
+    return CandidateOutcome(candidate, states, failure, embedded, engine.stats.calls,
+                            engine.stats.seconds, payloads, task_seconds=time.perf_counter() - t_start,
+                            conformer_seconds=conformer_s)
+
+
+def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[str, Any]:
+    """One row of the descriptor table: identity, status, energies, potentials, cost."""
+    cand = outcome.candidate
+    ref = settings.reference
+    row: dict[str, Any] = {
+        C.ID: cand.id,
+        C.SMILES: cand.smiles,
+        C.CANONICAL_SMILES: cand.main_smiles,
+        "counterions": ".".join(cand.counterions),
+        C.ROLE: cand.role,
+        C.N_ELECTRONS: cand.n_electrons,
+        C.MOLAR_MASS: round(cand.molar_mass_g_per_mol, 3),
+        "heavy_atoms": cand.heavy_atoms,
+    }
+    if outcome.states is None:
+        row[C.STATUS] = f"failed: {outcome.failure}"
+        return row
+    states = list(outcome.states.states.values())
+    first, last = states[0], states[-1]
+    steps = []
+    for prev, nxt in zip(states[:-1], states[1:]):
+        dg = reduction_free_energy_ev(prev.lowest.energy_eh, nxt.lowest.energy_eh, cand.role)
+        steps.append(potential_v(dg, shift_ev=settings.ipea_shift_ev, absolute_she=settings.absolute_she, reference=ref))
+    row[C.STATUS] = "ok"
+    row[C.potential_uncalibrated(ref)] = float(np.mean(steps))
+    if len(steps) == 2:
+        row[C.potential_uncalibrated(ref, 1)] = steps[0]
+        row[C.potential_uncalibrated(ref, 2)] = steps[1]
+        row[C.STEP_SEPARATION] = (steps[1] - steps[0]) * (1 if cand.role == "catholyte" else -1)
+    row["charge_discharged"] = first.charge
+    row["charge_charged"] = last.charge
+    row["multiplicity_discharged"] = first.multiplicity
+    row["multiplicity_charged"] = last.multiplicity
+    row["adiabatic_change_on_charging_ev"] = (last.lowest.energy_eh - first.lowest.energy_eh) * HARTREE_EV
+    low = first.lowest
+    row["vertical_change_on_charging_ev"] = (low.vertical_energies_eh[states[1].state] - low.energy_eh) * HARTREE_EV
+    for name, st in (("discharged", first), ("charged", last)):
+        c = st.lowest
+        row[f"homo_{name}_ev"] = c.homo_eh * HARTREE_EV
+        row[f"lumo_{name}_ev"] = c.lumo_eh * HARTREE_EV
+        row[f"gap_{name}_ev"] = (c.lumo_eh - c.homo_eh) * HARTREE_EV
+    row["conformers_embedded"] = outcome.conformers_embedded
+    row["conformers_refined"] = len(first.conformers)
+    row["gradient_calls"] = sum(c.gradient_calls for s in states for c in s.conformers)
+    row["optimisations_converged"] = all(c.converged for s in states for c in s.conformers)
+    row["wall_time_s"] = round(sum(s.wall_time_s for s in states), 3)
+    row["engine_time_s"] = round(sum(s.engine_time_s for s in states), 3)
+    row["from_store"] = outcome.new_engine_calls == 0
+    return row
+
+
+@dataclass(frozen=True)
+class ComputeReport:
+    """Result of a compute run: the table, the rejected rows and the cost of this run."""
+
+    table: pd.DataFrame
+    problems: list[InputError]
+    outcomes: list[CandidateOutcome]
+    new_engine_calls: int
+    new_engine_seconds: float
+    wall_time_s: float
+
+
+def compute_candidates(
+    candidates: list[Candidate],
+    settings: ComputeSettings,
+    store_path: str | Path,
+    *,
+    workers: int | None = None,
+    dask_address: str | None = None,
+    progress: bool = True,
+    sections: dict[str, Any] | None = None,
+    describe: bool = True,
+) -> tuple[list[CandidateOutcome], float]:
+    """Compute every candidate and its descriptor row (local pool or Dask), in input order.
+
+    ``sections``: the campaign's raw ``sites`` and ``descriptors`` tables;
+    ``describe=False`` leaves the descriptors out (potentials only, for a first pass).
+    """
+    sections = (sections or {}) if describe else None
+    t0 = time.perf_counter()
+    store_path = str(store_path)
+    workers = settings.workers if workers is None else workers
+    key_hash = settings.result_hash()
+    outcomes: dict[str, CandidateOutcome] = {}
+    local = dask_address is None
+    # cluster workers may not see this file system: they get the states already stored and
+    # the results are stored here; local workers read and write the store themselves.
+    # Candidates whose states are all stored go to the workers too: their descriptors are
+    # recomputed in parallel (after a change of sites, say), with no engine call.
+    with Store(store_path) as store:  # creates the file and schema before workers open it
+        known = {c.id: None if local else _stored_states(store, c, settings) for c in candidates}
+    # largest first: the pool's tail is then short jobs, not one long one
+    items = [(c, known[c.id]) for c in sorted(candidates, key=_expected_cost, reverse=True)]
+    task_args = (settings, store_path if local else None, sections)
+    if not items:
+        return [], time.perf_counter() - t0
+    # local workers wrote their states already; only cluster results are stored here.
+    # The parent holds no open store while the pool forks (SQLite handles must not cross fork).
+    store = None if local else Store(store_path)
+    try:
+        for out in map_tasks(_run_job, items, args=task_args, workers=workers,
+                             threads_per_worker=settings.threads_per_worker, dask_address=dask_address,
+                             progress=progress, desc="redox states"):
+            if store is not None:
+                for state, payload in out.payloads.items():
+                    key = conformer_key(settings) if state == CONFORMER_ENTRY else key_hash
+                    store.put(out.candidate.main_smiles, state, key, payload)
+            outcomes[out.candidate.id] = replace(out, payloads={})  # stored: keep memory flat
+    finally:
+        if store is not None:
+            store.close()
+    return [outcomes[c.id] for c in candidates], time.perf_counter() - t0
+
+
+def _stored_states(store: Store, candidate: Candidate, settings: ComputeSettings) -> dict[str, dict]:
+    """The candidate's payloads already in the store: redox states by name, and its conformer
+    ensemble under :data:`CONFORMER_ENTRY`."""
+    key_hash = settings.result_hash()
+    found = {s.name: p for s in candidate_states(candidate)
+             if (p := store.get(candidate.main_smiles, s.name, key_hash)) is not None}
+    ensemble = store.get(candidate.main_smiles, CONFORMER_ENTRY, conformer_key(settings))
+    if ensemble is not None:
+        found[CONFORMER_ENTRY] = ensemble
+    return found
+
+
+def candidate_task(
+    candidate: Candidate,
+    settings: ComputeSettings,
+    store_path: str | None,
+    stored: dict[str, dict] | None,
+    sections: dict[str, Any] | None,
+) -> CandidateOutcome:
+    """Compute one candidate and its descriptor row (runs in a worker).
+
+    ``sections``: the campaign's raw ``sites`` and ``descriptors`` tables, or None for
+    no descriptors (potentials only).
+    """
+    t0 = time.perf_counter()
+    out = compute_candidate(candidate, settings, store_path, stored)
+    row = candidate_row(out, settings)
+    if out.states is not None and sections is not None:
+        mol_h = Chem.AddHs(Chem.MolFromSmiles(candidate.main_smiles))
+        row.update(descriptors_for_candidate(mol_h, out.states, sections.get("sites"),
+                                             sections.get("descriptors")))
+    row.update(candidate.extra)  # user columns last, unchanged
+    # a local worker stored its payloads already: do not ship them back (memory, IPC)
+    payloads = {} if store_path else out.payloads
+    return replace(out, row=row, payloads=payloads, task_seconds=time.perf_counter() - t0)
+
+
+def _expected_cost(candidate: Candidate) -> int:
+    """Rough relative cost of a candidate, for scheduling: its atoms, hydrogens included.
+
+    On the benchmark set the atom count ranks the measured task times better
+    (Spearman 0.78) than heavy atoms plus rotatable bonds did (0.52); most of the
+    rest is the number of optimisation steps, which is not known in advance.
+    """
+    return Chem.AddHs(Chem.MolFromSmiles(candidate.main_smiles)).GetNumAtoms()
+
+
+def _run_job(job: tuple[Candidate, dict | None], settings: ComputeSettings, store_path: str | None,
+             sections: dict[str, Any] | None) -> CandidateOutcome:
+    return candidate_task(job[0], settings, store_path, job[1], sections)
+
+
+def compute_campaign(
+    campaign: Campaign,
+    *,
+    candidates_path: str | Path | None = None,
+    out_path: str | Path | None = None,
+    workers: int | None = None,
+    dask_address: str | None = None,
+    progress: bool = True,
+    describe: bool = True,
+) -> ComputeReport:
+    """Read the campaign's candidates, compute them, write ``results/descriptors.csv``.
+
+    Also writes ``results/geometries.sdf``: the lowest conformer of every redox state.
+
+    Bad rows are written to ``results/input_problems.csv`` with row, field and reason;
+    they never stop the batch. ``describe=False``: potentials only, no descriptors.
+    """
+    settings = campaign.compute
+    path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates)
+    candidates, problems = read_candidates(path, settings)
+    sections = {"sites": campaign.section("sites"), "descriptors": campaign.section("descriptors")}
+    outcomes, wall = compute_candidates(candidates, settings, campaign.store_path, workers=workers,
+                                        dask_address=dask_address, progress=progress, sections=sections,
+                                        describe=describe)
+    table = pd.DataFrame([o.row for o in outcomes])
+    out = Path(out_path) if out_path else campaign.results_dir / "descriptors.csv"
+    out.parent.mkdir(parents=True, exist_ok=True)
+    table.to_csv(out, index=False)
+    problems_table = pd.DataFrame(
+        [{"file": p.source, "row": p.row, "field": p.field, "reason": p.reason} for p in problems],
+        columns=["file", "row", "field", "reason"],
+    )
+    problems_table.to_csv(out.parent / "input_problems.csv", index=False)
+    write_geometries([o.states for o in outcomes if o.states is not None], out.parent / "geometries.sdf")
+    return ComputeReport(
+        table=table,
+        problems=problems,
+        outcomes=outcomes,
+        new_engine_calls=sum(o.new_engine_calls for o in outcomes),
+        new_engine_seconds=sum(o.new_engine_seconds for o in outcomes),
+        wall_time_s=wall,
+    )
+
+
+__all__ = [
+    "CONFORMER_ENTRY", "CandidateOutcome", "ComputeReport", "checkpoint_name", "conformer_key", "candidate_row", "compute_campaign", "compute_candidate",
+    "compute_candidates", "candidate_task",
+]

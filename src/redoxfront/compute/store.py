@@ -1,0 +1,118 @@
+"""The SQLite store: every computed redox state, keyed by molecule, state and settings.
+
+Keys are (canonical main-fragment SMILES, state name, settings hash); a candidate's RDKit
+conformer ensemble is stored the same way under the name ``conformer_ensemble`` and a key
+of the conformer settings alone (:func:`redoxfront.compute.step.conformer_key`). The hash
+covers every setting that changes energies or geometries
+(:meth:`~redoxfront.campaign.ComputeSettings.result_hash`), so a changed setting
+misses the cache and an unchanged one recomputes nothing. WAL journal mode lets
+several processes read while one writes; each write is its own short transaction,
+so a killed run loses at most the conformer it was optimising: finished conformers of a
+state in progress are kept as ``<state>:conformer:<i>`` entries until the state is whole.
+"""
+
+from __future__ import annotations
+
+import json
+import sqlite3
+import time
+from pathlib import Path
+from typing import Any
+
+from redoxfront.errors import RedoxfrontError
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS states (
+    smiles TEXT NOT NULL,
+    state TEXT NOT NULL,
+    settings_hash TEXT NOT NULL,
+    payload TEXT NOT NULL,
+    created_unix REAL NOT NULL,
+    PRIMARY KEY (smiles, state, settings_hash)
+)
+"""
+
+
+class Store:
+    """A small key-value store of JSON payloads in one SQLite file."""
+
+    def __init__(self, path: str | Path, timeout_s: float = 120.0) -> None:
+        self.path = Path(path)
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        deadline = time.monotonic() + timeout_s
+        con: sqlite3.Connection | None = None
+        while True:
+            try:
+                con = sqlite3.connect(self.path, timeout=timeout_s, isolation_level=None)
+                con.execute("PRAGMA journal_mode=WAL")
+                con.execute("PRAGMA synchronous=NORMAL")
+                con.execute(_SCHEMA)
+                self._con = con
+                break
+            except sqlite3.OperationalError as exc:
+                # another process is creating the file or switching it to WAL right now:
+                # SQLite may answer 'locked' without waiting, so wait here and try again
+                if ("locked" in str(exc) or "busy" in str(exc)) and time.monotonic() < deadline:
+                    if con is not None:
+                        con.close()
+                    time.sleep(0.05)
+                    continue
+                raise RedoxfrontError(f"cannot open store {self.path}: {exc}") from exc
+            except sqlite3.DatabaseError as exc:
+                raise RedoxfrontError(
+                    f"cannot open store {self.path}: {exc}; move the file away to start afresh") from exc
+
+    def get(self, smiles: str, state: str, settings_hash: str) -> dict[str, Any] | None:
+        """The stored payload, or None."""
+        row = self._con.execute(
+            "SELECT payload FROM states WHERE smiles=? AND state=? AND settings_hash=?",
+            (smiles, state, settings_hash),
+        ).fetchone()
+        return None if row is None else json.loads(row[0])
+
+    def put(self, smiles: str, state: str, settings_hash: str, payload: dict[str, Any]) -> dict[str, Any]:
+        """Store a payload and return the stored one.
+
+        If another process stored the same key first, its record is kept and returned
+        (first writer wins), so every reader reports the same numbers.
+        """
+        self._con.execute(
+            "INSERT OR IGNORE INTO states VALUES (?, ?, ?, ?, ?)",
+            (smiles, state, settings_hash, json.dumps(payload), time.time()),
+        )
+        stored = self.get(smiles, state, settings_hash)
+        return payload if stored is None else stored
+
+    def state_status(self, smiles: str, state: str, settings_hash: str) -> tuple[bool, str | None]:
+        """(stored?, failure reason or None) without reading the whole payload."""
+        try:
+            row = self._con.execute(
+                "SELECT json_extract(payload, '$.failed') FROM states WHERE smiles=? AND state=? AND settings_hash=?",
+                (smiles, state, settings_hash),
+            ).fetchone()
+        except sqlite3.OperationalError:  # an SQLite built without its JSON functions
+            payload = self.get(smiles, state, settings_hash)
+            return (False, None) if payload is None else (True, payload.get("failed"))
+        return (False, None) if row is None else (True, row[0])
+
+    def delete(self, smiles: str, state: str, settings_hash: str) -> None:
+        """Remove one entry (no error if it is not there)."""
+        self._con.execute("DELETE FROM states WHERE smiles=? AND state=? AND settings_hash=?",
+                          (smiles, state, settings_hash))
+
+    def count(self, settings_hash: str | None = None) -> int:
+        """Number of stored states (for one settings hash, if given)."""
+        if settings_hash is None:
+            return self._con.execute("SELECT COUNT(*) FROM states").fetchone()[0]
+        return self._con.execute(
+            "SELECT COUNT(*) FROM states WHERE settings_hash=?", (settings_hash,)
+        ).fetchone()[0]
+
+    def close(self) -> None:
+        self._con.close()
+
+    def __enter__(self) -> "Store":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()

@@ -1,0 +1,260 @@
+"""The ranking step of a campaign: cell metrics -> Pareto-ranked table, picks for the
+next experiments, summary and figures.
+
+Reads ``results/predictions.csv`` (plus ``results/descriptors.csv``), computes cell
+metrics (:mod:`redoxfront.ranking.cell_metrics`), then ranks with the Pareto science of
+:mod:`redoxfront.ranking.pareto` and :mod:`redoxfront.ranking.uncertainty`. Half-life is ranked
+on its log10. References are given in those modules.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Sequence
+
+import numpy as np
+import pandas as pd
+
+from redoxfront import columns as col
+from redoxfront.campaign import bounded
+from redoxfront.errors import DataError, SettingsError
+from redoxfront.ranking.objectives import OBJECTIVES
+from redoxfront.ranking.pareto import crowding_distance, hypervolume, knee_point, non_dominated_ranks
+from redoxfront.ranking.uncertainty import (
+    Uncertain,
+    front_probability,
+    objective_box,
+    suggest_experiments,
+)
+
+if TYPE_CHECKING:
+    from redoxfront.campaign import Campaign
+
+
+@dataclass(frozen=True)
+class RankingSettings:
+    """Campaign section ``[ranking]``.
+
+    objectives : names from :data:`OBJECTIVES`; default maximise cell voltage and
+        half-life. Pick cell voltage or energy density, not both (one holds the other).
+    n_draws : Monte Carlo draws for the probability of lying on the first front.
+    seed : seed of the draws and of the sample used to score picks.
+    n_suggestions : how many unmeasured candidates to suggest for the next experiments.
+    """
+
+    objectives: tuple[str, ...] = ("cell_voltage", "half_life")
+    n_draws: int = field(default=1000, metadata=bounded(1, 1_000_000))
+    seed: int = field(default=20261201, metadata=bounded(0, 2**31 - 1))
+    n_suggestions: int = field(default=5, metadata=bounded(0, 10_000))
+
+    def __post_init__(self) -> None:
+        names = tuple(self.objectives)
+        unknown = [o for o in names if o not in OBJECTIVES]
+        if unknown:
+            raise SettingsError(
+                f"[ranking] objectives: unknown '{unknown[0]}'; allowed: {', '.join(OBJECTIVES)}"
+            )
+        if len(set(names)) != len(names) or not names:
+            raise SettingsError("[ranking] objectives: give each objective once, at least one")
+        if "cell_voltage" in names and "energy_density" in names:
+            raise SettingsError(
+                "[ranking] objectives: energy_density already contains cell_voltage; keep one of them"
+            )
+
+
+def _objective_arrays(table: pd.DataFrame, names: Sequence[str]):
+    """Mean, 95 % low and high (maximised; half-life as log10 h) and a usable-row mask."""
+    n = len(table)
+    mean = np.zeros((n, len(names)))
+    low = np.zeros_like(mean)
+    high = np.zeros_like(mean)
+    for k, name in enumerate(names):
+        column, maximise = OBJECTIVES[name]
+        if column not in table.columns:
+            raise DataError(f"objective '{name}' needs column '{column}', which the table lacks")
+        v = pd.to_numeric(table[column], errors="coerce").to_numpy(dtype=float)
+        lo, hi = v, v
+        if name == "cell_voltage":
+            lo, hi = table[col.CELL_VOLTAGE_LOW].to_numpy(float), table[col.CELL_VOLTAGE_HIGH].to_numpy(float)
+        elif name == "energy_density":
+            lo, hi = table[col.ENERGY_DENSITY_LOW].to_numpy(float), table[col.ENERGY_DENSITY_HIGH].to_numpy(float)
+        elif name == "half_life":
+            with np.errstate(divide="ignore", invalid="ignore"):
+                v = np.log10(np.where(v > 0, v, np.nan))
+                lo = np.log10(np.where(table[col.HALF_LIFE_LOW].to_numpy(float) > 0, table[col.HALF_LIFE_LOW].to_numpy(float), np.nan))
+                hi = np.log10(np.where(table[col.HALF_LIFE_HIGH].to_numpy(float) > 0, table[col.HALF_LIFE_HIGH].to_numpy(float), np.nan))
+        if maximise:
+            mean[:, k], low[:, k], high[:, k] = v, lo, hi
+        else:
+            mean[:, k], low[:, k], high[:, k] = -v, -hi, -lo
+    ok = np.all(np.isfinite(mean) & np.isfinite(low) & np.isfinite(high), axis=1)
+    return mean, np.minimum(low, mean), np.maximum(high, mean), ok
+
+
+@dataclass(frozen=True)
+class RankingResult:
+    """Ranked table, picks and summary figures of one ranking run."""
+
+    table: pd.DataFrame
+    picks: pd.DataFrame
+    hypervolume_fraction: float
+    """Hypervolume of the first front of the means, as a fraction of the box of
+    :func:`objective_box` (objectives scaled to [0, 1], half-life as log10)."""
+    knee_id: str | None
+    objectives: tuple[str, ...]
+
+
+def rank_table(table: pd.DataFrame, settings: RankingSettings, *, progress: bool = False) -> RankingResult:
+    """Pareto rank, crowding distance, knee, probability on the first front and picks.
+
+    ``table`` comes from :func:`redoxfront.ranking.cell_metrics.cell_metrics`. Rows lacking an objective
+    value are kept, unranked, with a note. Picks exclude measured candidates and carry
+    the extrapolation flag.
+    """
+    names = tuple(settings.objectives)
+    out = table.copy().reset_index(drop=True)
+    mean, low, high, ok = _objective_arrays(out, names)
+    notes = out[col.RANKING_NOTE].fillna("").astype(str).tolist() if col.RANKING_NOTE in out else [""] * len(out)
+    for r in np.flatnonzero(~ok):
+        missing = [nm for k, nm in enumerate(names) if not (np.isfinite(mean[r, k]) and np.isfinite(low[r, k]) and np.isfinite(high[r, k]))]
+        notes[r] = "; ".join(x for x in (notes[r], "not ranked: no value for " + ", ".join(missing)) if x)
+    out[col.RANKING_NOTE] = notes
+    rows = np.flatnonzero(ok)
+    rank = pd.array([pd.NA] * len(out), dtype="Int64")
+    crowd = np.full(len(out), np.nan)
+    p_front = np.full(len(out), np.nan)
+    knee = np.zeros(len(out), dtype=bool)
+    gain = np.full(len(out), np.nan)
+    order = np.full(len(out), 0)
+    hv_fraction = 0.0
+    knee_id: str | None = None
+    if len(rows):
+        mu, lo, hi = mean[rows], low[rows], high[rows]
+        r = non_dominated_ranks(mu)
+        rank[rows] = r
+        crowd[rows] = crowding_distance(mu, r)
+        first = np.flatnonzero(r == 1)
+        kn = first[knee_point(mu[first])]
+        knee[rows[kn]] = True
+        knee_id = str(out[col.ID].iloc[rows[kn]])
+        p = front_probability(mu, lo, hi, settings.n_draws, settings.seed, progress=progress)
+        p_front[rows] = p
+        box_lo, span = objective_box(Uncertain.from_interval(mu, lo, hi))
+        hv_fraction = hypervolume((mu[first] - box_lo) / span, np.zeros(len(names)))
+        measured = out[col.MEASURED].to_numpy(bool)[rows] if col.MEASURED in out else np.zeros(len(rows), bool)
+        if settings.n_suggestions > 0:
+            picked, gains = suggest_experiments(
+                mu, lo, hi, measured, settings.n_suggestions, settings.seed, priority=p
+            )
+            gain[rows[picked]] = gains
+            order[rows[picked]] = np.arange(1, len(picked) + 1)
+    out[col.PARETO_RANK] = rank
+    out[col.CROWDING] = crowd
+    out[col.KNEE] = knee
+    out[col.P_FRONT] = p_front
+    out[col.EXPECTED_HV_GAIN] = gain
+    out[col.PICK_ORDER] = pd.array(np.where(order > 0, order, 0), dtype="Int64")
+    out.loc[order == 0, col.PICK_ORDER] = pd.NA
+    sort_rank = out[col.PARETO_RANK].astype("float").fillna(np.inf)
+    out = out.assign(_r=sort_rank, _p=-out[col.P_FRONT].fillna(-1)).sort_values(
+        ["_r", "_p", col.ID], kind="stable").drop(columns=["_r", "_p"]).reset_index(drop=True)
+    picks = out[out[col.PICK_ORDER].notna()].sort_values(col.PICK_ORDER).reset_index(drop=True)
+    keep = [c for c in (
+        col.PICK_ORDER, col.ID, col.SMILES, col.ROLE, col.EXPECTED_HV_GAIN, col.P_FRONT, col.PARETO_RANK,
+        col.CELL_VOLTAGE, col.CELL_VOLTAGE_LOW, col.CELL_VOLTAGE_HIGH, col.ENERGY_DENSITY,
+        col.HALF_LIFE, col.HALF_LIFE_LOW, col.HALF_LIFE_HIGH, col.MOLAR_MASS, col.POTENTIAL_BASIS,
+        col.DOMAIN, col.EXTRAPOLATING, col.RANKING_NOTE) if c in picks.columns]
+    keep += [c for c in picks.columns if c.startswith(col.SUBSTITUENT_PREFIX)]  # a library's building blocks
+    return RankingResult(out, picks[keep], float(hv_fraction), knee_id, names)
+
+
+def ranking_settings(campaign: "Campaign") -> RankingSettings:
+    """The campaign's validated ``[ranking]`` section."""
+    from redoxfront.campaign import section_from_mapping
+
+    return section_from_mapping(RankingSettings, campaign.section("ranking"), "ranking")
+
+
+def ranking_objectives(campaign: "Campaign") -> tuple[str, ...]:
+    """The campaign's ranking objectives (``[ranking] objectives``)."""
+    return tuple(ranking_settings(campaign).objectives)
+
+
+def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFrame:
+    """Rank a campaign's candidates: reads results/predictions.csv, writes
+    results/ranking.csv, results/picks.csv, results/ranking_summary.json and the figures
+    under results/figures/; returns the ranked table."""
+    import json
+
+    from redoxfront.campaign import section_from_mapping
+    from redoxfront.ranking.cell_metrics import CellSettings, cell_metrics, truthy
+    from redoxfront.errors import InputError
+
+    cell_settings = section_from_mapping(CellSettings, campaign.section("cell"), "cell")
+    settings = ranking_settings(campaign)
+    src = campaign.results_dir / "predictions.csv"
+    if not src.exists():
+        if "half_life" in settings.objectives:
+            raise InputError("no predictions yet; run the rate-model step first to write it, or rank on "
+                             "objectives without half_life", source=str(src))
+        src = campaign.results_dir / "descriptors.csv"  # no rate model needed for these objectives
+        if not src.exists():
+            raise InputError("no descriptor table yet; run the compute step first", source=str(src))
+    try:
+        table = pd.read_csv(src)
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise InputError(f"cannot read the table: {exc}", source=str(src)) from exc
+    if col.ID not in table.columns:
+        raise InputError(f"no '{col.ID}' column", source=str(src), field=col.ID)
+    table[col.ID] = table[col.ID].astype(str)
+    desc_path = campaign.results_dir / "descriptors.csv"
+    if desc_path.exists():  # potentials, role, charge count, molar mass live there
+        desc = pd.read_csv(desc_path)
+        if col.ID in desc.columns:
+            desc[col.ID] = desc[col.ID].astype(str)
+            extra = [c for c in desc.columns if c not in table.columns]
+            if extra:
+                table = table.merge(desc[[col.ID, *extra]].drop_duplicates(col.ID), on=col.ID, how="left")
+    flag = truthy(table[col.MEASURED]) if col.MEASURED in table.columns else pd.Series(False, index=table.index)
+    for target in (col.LOG10_K_FIRST, col.LOG10_K_SECOND):  # measured rates the model step carried
+        if target in table.columns:
+            flag |= pd.to_numeric(table[target], errors="coerce").notna()
+    if campaign.inputs.measured_rates:
+        rates_path = campaign.path(campaign.inputs.measured_rates)
+        if rates_path.exists():
+            rates = pd.read_csv(rates_path)
+            if col.ID in rates.columns:
+                flag |= table[col.ID].isin(set(rates[col.ID].astype(str)))
+    # read_csv and merge leave one block per column; consolidate once before adding columns
+    table = table.copy()
+    table[col.MEASURED] = flag.to_numpy(bool)
+    metrics = cell_metrics(
+        table, cell_settings, campaign.compute.reference,
+        default_role=campaign.compute.role, default_n_electrons=campaign.compute.n_electrons,
+    )
+    result = rank_table(metrics, settings, progress=progress)
+    out_dir = campaign.results_dir
+    out_dir.mkdir(parents=True, exist_ok=True)
+    result.table.to_csv(out_dir / "ranking.csv", index=False)
+    result.picks.to_csv(out_dir / "picks.csv", index=False)
+    basis = result.table[col.POTENTIAL_BASIS].value_counts().to_dict()
+    summary = {
+        "objectives": list(result.objectives),
+        "hypervolume_fraction": result.hypervolume_fraction,
+        "knee_id": result.knee_id,
+        "n_candidates": int(len(result.table)),
+        "n_ranked": int(result.table[col.PARETO_RANK].notna().sum()),
+        "n_first_front": int((result.table[col.PARETO_RANK] == 1).sum()),
+        "potential_basis_counts": {str(k): int(v) for k, v in basis.items() if k},
+        "cell": dataclasses.asdict(cell_settings),
+        "ranking": {**dataclasses.asdict(settings), "objectives": list(settings.objectives)},
+        "reference": campaign.compute.reference,
+    }
+    (out_dir / "ranking_summary.json").write_text(json.dumps(summary, indent=2), encoding="utf-8")
+    from redoxfront.ranking.figures import plot_front, plot_pairwise
+
+    fig_dir = out_dir / "figures"
+    plot_front(result.table, result.objectives, fig_dir / "front.png")
+    plot_pairwise(result.table, result.objectives, fig_dir / "objectives_pairwise.png")
+    return result.table

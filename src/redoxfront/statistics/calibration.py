@@ -1,0 +1,291 @@
+"""Linear calibration of computed redox potentials against measured ones.
+
+measured = a + b x computed, fitted by least squares (optionally per compound
+class), applied to every candidate with a 95 % prediction interval. Semiempirical
+potentials carry a constant offset and a slope error that a linear calibration
+within one compound class largely removes (Davis & Fry, J. Phys. Chem. A 2010,
+114, 12299). All potentials are in V against the campaign's reference electrode;
+measured values are converted with :func:`redoxfront.units.convert_potential`.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import tempfile
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from redoxfront import columns
+from redoxfront.campaign import Campaign, bounded, section_from_mapping
+from redoxfront.errors import DataError, InputError
+from redoxfront.statistics.regression import OLSModel
+from redoxfront.units import convert_potential, reference_key
+
+STATUS_CALIBRATED = "calibrated"
+STATUS_OUTSIDE = "calibrated (outside calibration range)"
+STATUS_UNCALIBRATED = "uncalibrated"
+POOLED = "all"
+MEASURED_COLUMNS = ("id", "potential_v", "reference", "solvent")
+
+
+@dataclass(frozen=True)
+class CalibrationSettings:
+    """Campaign section ``[calibration]``.
+
+    per_class : fit one line per value of the ``class`` column (classes with fewer
+        than ``min_points_per_class`` measured rows use the pooled line).
+    """
+
+    per_class: bool = False
+    min_points_per_class: int = field(default=4, metadata=bounded(3, None))
+
+
+@dataclass(frozen=True)
+class LineFit:
+    """One calibration line: measured = intercept + slope x computed (V)."""
+
+    group: str
+    n: int
+    slope: float
+    slope_se: float
+    intercept_v: float
+    intercept_se_v: float
+    r2: float
+    rmse_v: float
+    loo_mae_v: float
+    computed_min_v: float
+    computed_max_v: float
+
+
+class Calibration:
+    """A fitted linear calibration (small estimator: ``fit`` / ``predict``)."""
+
+    def fit(self, computed_v: Any, measured_v: Any, ids: Any = None, group: str = POOLED) -> "Calibration":
+        x = np.asarray(computed_v, dtype=float)
+        self.model_ = OLSModel(kfold=x.size, n_permutations=0).fit(
+            x[:, None], measured_v, names=["computed_potential_v"], ids=ids
+        )
+        m = self.model_
+        self.line_ = LineFit(
+            group=group,
+            n=m.n_,
+            slope=float(m.coef_[1]),
+            slope_se=float(m.se_[1]),
+            intercept_v=float(m.coef_[0]),
+            intercept_se_v=float(m.se_[0]),
+            r2=float(m.r2_),
+            rmse_v=float(m.rmse_),
+            loo_mae_v=float(m.loo_mae_),
+            computed_min_v=float(x.min()),
+            computed_max_v=float(x.max()),
+        )
+        return self
+
+    def predict(self, computed_v: Any) -> pd.DataFrame:
+        """Calibrated value, 95 % PI and status per computed potential (V)."""
+        x = np.asarray(computed_v, dtype=float)
+        pi = self.model_.predict_interval(x[:, None])
+        inside = (x >= self.line_.computed_min_v) & (x <= self.line_.computed_max_v)
+        status = np.where(
+            np.isnan(x), STATUS_UNCALIBRATED, np.where(inside, STATUS_CALIBRATED, STATUS_OUTSIDE)
+        )
+        return pd.DataFrame(
+            {"value": pi["prediction"].to_numpy(), "low": pi["pi_low"].to_numpy(),
+             "high": pi["pi_high"].to_numpy(), "status": status}
+        )
+
+
+@dataclass(frozen=True)
+class CalibrationReport:
+    """What a calibration run fitted and left out."""
+
+    reference: str
+    lines: tuple[LineFit, ...]
+    n_measured_used: int
+    notes: tuple[str, ...]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "reference": self.reference,
+            "n_measured_used": self.n_measured_used,
+            "lines": [l.__dict__ for l in self.lines],
+            "notes": list(self.notes),
+        }
+
+
+def read_measured_potentials(path: Path, reference: str) -> tuple[pd.DataFrame, list[str]]:
+    """Read measured potentials; convert to ``reference``; average duplicate ids.
+
+    Returns columns ``id``, ``measured_v`` (V vs reference) and ``class`` if given,
+    plus notes on skipped rows. Rows with an unknown reference or non-numeric value
+    are skipped with a note (a bad row never stops the batch).
+    """
+    if not path.exists():
+        raise InputError("file not found; check [inputs] measured_potentials", source=str(path))
+    df = pd.read_csv(path)
+    df.columns = [str(c).strip().lower() for c in df.columns]
+    missing = [c for c in MEASURED_COLUMNS if c not in df.columns]
+    if missing:
+        raise InputError(
+            f"missing column(s) {', '.join(missing)}; need {', '.join(MEASURED_COLUMNS)} (class optional)",
+            source=str(path),
+        )
+    notes: list[str] = []
+    rows = []
+    for i, r in df.iterrows():
+        rid = str(r["id"])
+        try:
+            v = float(r["potential_v"])
+            if not math.isfinite(v):
+                raise ValueError
+        except (TypeError, ValueError):
+            notes.append(f"{path.name} row {i + 2} ({rid}): potential_v {r['potential_v']!r} is not a number; skipped")
+            continue
+        try:
+            v = convert_potential(v, str(r["reference"]), reference)
+        except Exception as exc:  # unknown electrode name
+            notes.append(f"{path.name} row {i + 2} ({rid}): {exc}; skipped")
+            continue
+        row = {"id": rid, "measured_v": v}
+        if "class" in df.columns:
+            row["class"] = str(r["class"])
+        rows.append(row)
+    solvents = sorted(set(df["solvent"].astype(str).str.strip().str.lower()))
+    if len(solvents) > 1:
+        notes.append(
+            f"measured potentials come from several solvents ({', '.join(solvents)}); "
+            "reference conversions assume one solvent, calibrate per solvent if values differ"
+        )
+    out = pd.DataFrame(rows, columns=["id", "measured_v"] + (["class"] if "class" in df.columns else []))
+    if out["id"].duplicated().any():
+        notes.append("some ids were measured more than once; their values were averaged")
+        agg: dict[str, str] = {"measured_v": "mean"}
+        if "class" in out.columns:
+            agg["class"] = "first"
+        out = out.groupby("id", as_index=False, sort=False).agg(agg)
+    return out, notes
+
+
+def calibrate_table(
+    table: pd.DataFrame,
+    measured: pd.DataFrame | None,
+    reference: str,
+    settings: CalibrationSettings = CalibrationSettings(),
+) -> tuple[pd.DataFrame, CalibrationReport]:
+    """Add the calibrated potential, its 95 % PI and the calibration status to ``table``.
+
+    Without measured data every row is 'uncalibrated' and the calibrated columns are NaN.
+    Only rows with status 'ok' and a finite raw potential are calibrated or used to fit.
+    """
+    ref = reference_key(reference)
+    raw_col = columns.potential_uncalibrated(ref)
+    if raw_col not in table.columns:
+        raise DataError(f"descriptor table has no '{raw_col}' column; run the compute step first")
+    t = table.copy()
+    t[columns.ID] = t[columns.ID].astype(str)
+    cal_col = columns.potential_calibrated(ref)
+    lo_col, hi_col = columns.potential_calibrated_pi_low(ref), columns.potential_calibrated_pi_high(ref)
+    t[cal_col] = np.nan
+    t[lo_col] = np.nan
+    t[hi_col] = np.nan
+    t[columns.CALIBRATION_STATUS] = STATUS_UNCALIBRATED
+    t[columns.CALIBRATION_GROUP] = ""
+    notes: list[str] = []
+    if measured is None or measured.empty:
+        notes.append("no measured potentials given: every potential is uncalibrated")
+        return t, CalibrationReport(ref, (), 0, tuple(notes))
+    ok = t[columns.STATUS].astype(str).eq("ok") if columns.STATUS in t.columns else pd.Series(True, index=t.index)
+    raw = pd.to_numeric(t[raw_col], errors="coerce")
+    usable = ok & raw.notna()
+    meas_col = columns.potential_measured(ref)
+    t[meas_col] = t[columns.ID].map(measured.set_index("id")["measured_v"])
+    unknown = sorted(set(measured["id"]) - set(t[columns.ID]))
+    if unknown:
+        notes.append(f"measured id(s) not in the descriptor table, ignored: {', '.join(unknown[:20])}")
+    not_ok = sorted(set(t.loc[t[meas_col].notna() & ~usable, columns.ID]))
+    if not_ok:
+        notes.append(f"measured id(s) whose computation failed, ignored in the fit: {', '.join(not_ok[:20])}")
+    train = usable & t[meas_col].notna()
+    if settings.per_class:
+        if "class" not in t.columns:
+            raise DataError(
+                "[calibration] per_class = true needs a 'class' column in the candidates "
+                "(and descriptor table); add it or set per_class = false"
+            )
+        group = t["class"].astype(str)
+    else:
+        group = pd.Series(POOLED, index=t.index)
+    pooled = Calibration().fit(raw[train], t.loc[train, meas_col], ids=t.loc[train, columns.ID])
+    lines = [pooled.line_]
+    fits: dict[str, Calibration] = {}
+    if settings.per_class:
+        for g, idx in group[train].groupby(group[train]).groups.items():
+            if len(idx) >= settings.min_points_per_class:
+                fits[str(g)] = Calibration().fit(raw[idx], t.loc[idx, meas_col], ids=t.loc[idx, columns.ID], group=str(g))
+                lines.append(fits[str(g)].line_)
+            else:
+                notes.append(
+                    f"class '{g}' has {len(idx)} measured row(s) (< {settings.min_points_per_class}); "
+                    "it uses the pooled calibration"
+                )
+    use_group = group.where(group.isin(list(fits)), POOLED)
+    for g, idx in use_group[usable].groupby(use_group[usable]).groups.items():
+        cal = fits.get(str(g), pooled)
+        pr = cal.predict(raw[idx].to_numpy())
+        t.loc[idx, cal_col] = pr["value"].to_numpy()
+        t.loc[idx, lo_col] = pr["low"].to_numpy()
+        t.loc[idx, hi_col] = pr["high"].to_numpy()
+        t.loc[idx, columns.CALIBRATION_STATUS] = pr["status"].to_numpy()
+        t.loc[idx, columns.CALIBRATION_GROUP] = str(g)
+    n_out = int((t[columns.CALIBRATION_STATUS] == STATUS_OUTSIDE).sum())
+    if n_out:
+        notes.append(
+            f"{n_out} candidate(s) have computed potentials outside the calibration range; "
+            "their calibrated values are extrapolations"
+        )
+    return t, CalibrationReport(ref, tuple(lines), int(train.sum()), tuple(notes))
+
+
+def _write_csv_atomic(df: pd.DataFrame, path: Path) -> None:
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=path.name, suffix=".tmp")
+    os.close(fd)
+    df.to_csv(tmp, index=False)
+    os.replace(tmp, path)
+
+
+def calibrate_campaign(campaign: Campaign) -> pd.DataFrame:
+    """Calibrate ``results/descriptors.csv`` in place; write ``results/calibration.json``
+    and ``results/figures/calibration_parity.png``. Returns the updated table."""
+    settings = section_from_mapping(CalibrationSettings, campaign.section("calibration"), "calibration")
+    ref = reference_key(campaign.compute.reference)
+    path = campaign.results_dir / "descriptors.csv"
+    if not path.exists():
+        raise DataError(f"no descriptor table at {path}; run the compute step first")
+    table = pd.read_csv(path)
+    measured, notes = (None, [])
+    if campaign.inputs.measured_potentials:
+        measured, notes = read_measured_potentials(campaign.path(campaign.inputs.measured_potentials), ref)
+    out, report = calibrate_table(table, measured, ref, settings)
+    _write_csv_atomic(out, path)
+    d = report.to_dict()
+    d["notes"] = notes + d["notes"]
+    (campaign.results_dir / "calibration.json").write_text(json.dumps(d, indent=2), encoding="utf-8")
+    out.attrs["calibration"] = d
+    if report.lines:
+        from redoxfront.statistics.figures import calibration_parity
+
+        line = report.lines[0]
+        meas_col = columns.potential_measured(ref)
+        used = out[out[meas_col].notna() & out[columns.CALIBRATION_STATUS].ne(STATUS_UNCALIBRATED)]
+        calibration_parity(
+            used[columns.potential_uncalibrated(ref)].to_numpy(float), used[meas_col].to_numpy(float),
+            line.slope, line.intercept_v, ref, campaign.results_dir / "figures" / "calibration_parity.png",
+            labels=used[columns.ID].tolist(),
+        )
+    return out

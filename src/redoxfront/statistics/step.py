@@ -1,0 +1,372 @@
+"""The rate-model step of a campaign: read descriptors and measured rates, choose terms,
+split, fit and validate an :class:`~redoxfront.statistics.regression.OLSModel`, predict every
+candidate with a 95 % prediction interval and its applicability domain, save the model
+(JSON) and the figures.
+
+Reads ``results/descriptors.csv`` and the rates file; writes ``results/model.json``,
+``results/predictions.csv`` and ``results/figures/``. The statistics and their
+references are in :mod:`redoxfront.statistics.regression`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from dataclasses import field as dc_field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from redoxfront import columns
+from redoxfront.campaign import bounded, choice
+from redoxfront.errors import DataError
+from redoxfront.statistics.regression import OLSModel
+from redoxfront.units import STANDARD_TEMPERATURE_K
+
+STERIC_PREFIXES: tuple[str, ...] = (
+    "sterimol_b1", "sterimol_b5", "sterimol_l", "sterimol", "buried_volume_percent",
+    "ring_plane_clearance",
+)
+"""Column-name prefixes searched, in order, for the default steric term."""
+POTENTIAL_TERM = "potential"
+
+
+@dataclass(frozen=True)
+class ModelSettings:
+    """Campaign section ``[model]``.
+
+    terms : model terms; "potential" means the calibrated potential if available,
+        else the raw one. Empty: "potential" plus the first steric column found.
+    search : rank every subset of 1..max_terms descriptors by LOO Q2 and use the best.
+    pool / exclude : descriptor columns searched (empty pool: every numeric
+        descriptor column) and columns left out of it.
+    search_scrambled : whole searches repeated on scrambled targets (chance baseline).
+    n_permutations : y-randomisation rounds for the fitted model (>= 100).
+    split : 'auto' (the rates file's ``set`` column if present, else none), 'none',
+        'marked' (the ``set`` column), or 'kennard-stone' (test_fraction held out).
+    temperature_k : temperature for ddG‡ in kcal/mol.
+    rate_order : 1 (k in 1/h) or 2 (k in L/(mol h)).
+    rates : rates file; default [inputs] measured_rates, else results/rates.csv.
+    """
+
+    terms: tuple[str, ...] = ()
+    search: bool = False
+    max_terms: int = dc_field(default=2, metadata=bounded(1, 3))
+    pool: tuple[str, ...] = ()
+    exclude: tuple[str, ...] = ()
+    search_scrambled: int = dc_field(default=20, metadata=bounded(0, 1000))
+    n_permutations: int = dc_field(default=200, metadata=bounded(100, 100000))
+    seed: int = dc_field(default=20261201, metadata=bounded(0, 2**31 - 1))
+    kfold: int = dc_field(default=5, metadata=bounded(2, 1000))
+    split: str = dc_field(default="auto", metadata=choice("auto", "none", "marked", "kennard-stone"))
+    test_fraction: float = dc_field(default=0.2, metadata=bounded(0.05, 0.5))
+    temperature_k: float = dc_field(default=STANDARD_TEMPERATURE_K, metadata=bounded(1.0, 1000.0))
+    rate_order: int = dc_field(default=1, metadata=choice(1, 2))
+    rates: str | None = None
+
+
+@dataclass(frozen=True)
+class FitReport:
+    """Result of :func:`fit_campaign`: the model, its validation and where files went."""
+
+    terms: tuple[str, ...]
+    target: str
+    coefficients: pd.DataFrame
+    statistics: dict[str, Any]
+    external: dict[str, Any] | None
+    search: dict[str, Any] | None
+    n_train: int
+    n_test: int
+    n_extrapolating: int
+    model_path: Path
+    predictions_path: Path
+    figures: tuple[Path, ...]
+    notes: tuple[str, ...]
+
+    def text(self) -> str:
+        """A short plain-text summary for the terminal."""
+        s = self.statistics
+        lines = [f"{self.target} = fitted on {self.n_train} rows, terms: {', '.join(self.terms)}"]
+        lines.append(self.coefficients.to_string(index=False, float_format=lambda v: f"{v:.4g}"))
+        lines.append(
+            f"R2 {s['r2']:.3f}  adj R2 {s['adj_r2']:.3f}  RMSE {s['rmse']:.3f}  "
+            f"Q2(LOO) {s['q2_loo']:.3f}  Q2({s['kfold']}-fold) {s['q2_kfold']:.3f}"
+            if s.get("q2_loo") is not None and s.get("q2_kfold") is not None
+            else f"R2 {s['r2']:.3f}  (Q2 undefined: a row has leverage 1)"
+        )
+        if "y_randomisation" in s:
+            yr = s["y_randomisation"]
+            lines.append(
+                f"y-randomisation ({yr['n_permutations']}): scrambled Q2 mean {yr['q2_mean']:.3f}, "
+                f"max {yr['q2_max']:.3f}, p = {yr['p_value_q2']:.3g}"
+            )
+        if self.external:
+            e = self.external
+            lines.append(f"external test ({e['n_test']} rows): Q2_ext {e['q2_ext_f1']:.3f}, RMSE {e['rmse_test']:.3f}")
+        if self.search:
+            lines.append(self.search["warning"])
+        lines.append(f"{self.n_extrapolating} candidate(s) outside the applicability domain (extrapolating)")
+        lines += [f"note: {n}" for n in self.notes]
+        lines.append(f"model: {self.model_path}  predictions: {self.predictions_path}")
+        return "\n".join(lines)
+
+
+def _non_descriptor(col: str) -> bool:
+    fixed = {
+        columns.ID, columns.STATUS, columns.N_ELECTRONS, columns.MOLAR_MASS, columns.SOLUBILITY,
+        columns.MEASURED, columns.RATE_ORDER, columns.LEVERAGE, columns.LEVERAGE_THRESHOLD,
+        columns.STANDARDISED_RESIDUAL, "set", "class",
+    }
+    return col in fixed or col.startswith(("potential", "log10_k", "calibration"))
+
+
+def _read_rates(path: Path, target: str) -> tuple[pd.DataFrame, list[str]]:
+    from redoxfront.errors import InputError
+
+    if not path.exists():
+        raise DataError(
+            f"no rates file at {path}; set [inputs] measured_rates or run the fade step "
+            "(it writes results/rates.csv)"
+        )
+    df = pd.read_csv(path)
+    if columns.ID not in df.columns or target not in df.columns:
+        raise InputError(
+            f"need columns '{columns.ID}' and '{target}' (found {', '.join(map(str, df.columns))}); "
+            "check [model] rate_order", source=str(path),
+        )
+    df[columns.ID] = df[columns.ID].astype(str)
+    notes: list[str] = []
+    df[target] = pd.to_numeric(df[target], errors="coerce")
+    if columns.STATUS in df.columns:
+        failed = df[columns.STATUS].astype(str).ne("ok")
+        if failed.any():
+            notes.append(f"rates with a failed fit, left out: {', '.join(df.loc[failed, columns.ID][:20])}")
+        df = df[~failed].copy()
+    empty = df.loc[df[target].isna(), columns.ID].tolist()
+    if empty:
+        notes.append(f"rates without a value, left out: {', '.join(empty[:20])}")
+    df = df[df[target].notna()].copy()
+    if "set" in df.columns:
+        df["set"] = df["set"].fillna("train").astype(str).str.strip().str.lower().replace("", "train")
+        bad = df.loc[~df["set"].isin(["train", "test"])]
+        if len(bad):
+            r = bad.iloc[0]
+            raise InputError(
+                f"'set' must be train or test, got {r['set']!r}", row=r[columns.ID], field="set",
+                source=str(path),
+            )
+    if df[columns.ID].duplicated().any():
+        notes.append("some ids have more than one rate; their log10 k values were averaged")
+        agg = {target: "mean", **({"set": "first"} if "set" in df.columns else {})}
+        df = df.groupby(columns.ID, as_index=False, sort=False).agg(agg)
+    return df, notes
+
+
+def _resolve_potential(campaign: Any, table: pd.DataFrame) -> tuple[pd.DataFrame, str, list[str]]:
+    from redoxfront.statistics.calibration import (
+        CalibrationSettings, calibrate_table, read_measured_potentials,
+    )
+    from redoxfront.campaign import section_from_mapping as sfm
+
+    ref = campaign.compute.reference
+    cal = columns.potential_calibrated(ref)
+    raw = columns.potential_uncalibrated(ref)
+    if cal in table.columns and pd.to_numeric(table[cal], errors="coerce").notna().any():
+        return table, cal, []
+    if campaign.inputs.measured_potentials:
+        measured, notes = read_measured_potentials(campaign.path(campaign.inputs.measured_potentials), ref)
+        settings = sfm(CalibrationSettings, campaign.section("calibration"), "calibration")
+        table, _ = calibrate_table(table, measured, ref, settings)
+        return table, cal, notes + ["potentials calibrated on the fly (run the calibrate command to store them)"]
+    if raw not in table.columns:
+        raise DataError(f"descriptor table has no '{raw}' column; run the compute step first")
+    return table, raw, ["no measured potentials: the model uses the uncalibrated potential"]
+
+
+def fit_campaign(campaign: Any) -> FitReport:
+    """Fit the decomposition-rate model of a campaign and predict every candidate.
+
+    Reads ``results/descriptors.csv`` and the rates; writes ``results/model.json``,
+    ``results/predictions.csv`` and figures under ``results/figures/``.
+    """
+    from redoxfront.statistics import figures as model_plots
+    from redoxfront.campaign import section_from_mapping as sfm
+    from redoxfront.statistics.training_set import kennard_stone_split
+    from redoxfront.statistics.term_search import search_terms
+
+    st = sfm(ModelSettings, campaign.section("model"), "model")
+    target = columns.LOG10_K_FIRST if st.rate_order == 1 else columns.LOG10_K_SECOND
+    pred_col = columns.LOG10_K_PRED_FIRST if st.rate_order == 1 else columns.LOG10_K_PRED_SECOND
+    desc_path = campaign.results_dir / "descriptors.csv"
+    if not desc_path.exists():
+        raise DataError(f"no descriptor table at {desc_path}; run the compute step first")
+    table = pd.read_csv(desc_path)
+    table[columns.ID] = table[columns.ID].astype(str)
+    table, pot_col, notes = _resolve_potential(campaign, table)
+    rates_rel = st.rates or campaign.inputs.measured_rates
+    rates_path = campaign.path(rates_rel) if rates_rel else campaign.results_dir / "rates.csv"
+    rates, rate_notes = _read_rates(rates_path, target)
+    notes += rate_notes
+    ok = table[columns.STATUS].astype(str).eq("ok") if columns.STATUS in table.columns else pd.Series(True, index=table.index)
+    ok_ids = set(table.loc[ok, columns.ID])
+    dropped = [i for i in rates[columns.ID] if i not in ok_ids]
+    if dropped:
+        notes.append(f"rated id(s) missing from the descriptor table or failed there, left out: {', '.join(dropped[:20])}")
+    rates = rates[rates[columns.ID].isin(ok_ids)]
+    data = table.drop(columns=[c for c in (target, "set") if c in table.columns]).merge(
+        rates, on=columns.ID, how="inner"
+    )
+    data = data.set_index(columns.ID)
+
+    # ---- terms
+    def real(term: str) -> str:
+        return pot_col if term == POTENTIAL_TERM else term
+
+    if st.terms:
+        terms = tuple(real(t) for t in st.terms)
+    else:
+        steric = next(
+            (c for pre in STERIC_PREFIXES for c in table.columns if str(c).startswith(pre)), None
+        )
+        if steric is None:
+            raise DataError("no steric descriptor column found; set [model] terms, e.g. [\"potential\", \"<column>\"]")
+        terms = (pot_col, steric)
+        notes.append(f"default terms: potential and '{steric}'; set [model] terms to choose another")
+    missing = [t for t in terms if t not in data.columns]
+    if missing and not st.search:
+        raise DataError(f"model term(s) {', '.join(missing)} not in the descriptor table; check [model] terms")
+
+    # ---- split
+    split = st.split
+    if split == "auto":
+        split = "marked" if "set" in data.columns else "none"
+    if split == "marked":
+        if "set" not in data.columns:
+            raise DataError("[model] split = 'marked' needs a 'set' column (train/test) in the rates file")
+        is_test = data["set"].eq("test").to_numpy()
+    elif split == "kennard-stone":
+        ks_cols = list(terms) if not st.search else _pool(table, st, pot_col)
+        vals = data[ks_cols].apply(pd.to_numeric, errors="coerce")
+        vals = vals.loc[:, vals.notna().all()]
+        _, test_idx = kennard_stone_split(vals.to_numpy(float), st.test_fraction)
+        is_test = np.zeros(len(data), dtype=bool)
+        is_test[test_idx] = True
+    else:
+        is_test = np.zeros(len(data), dtype=bool)
+    train, test = data[~is_test], data[is_test]
+
+    # ---- search
+    search_summary = None
+    if st.search:
+        pool = _pool(table, st, pot_col)
+        res = search_terms(
+            train[pool], train[target], max_terms=st.max_terms, n_scrambled=st.search_scrambled,
+            seed=st.seed,
+        )
+        terms = res.best_terms
+        search_summary = res.summary()
+        search_summary["top"] = [
+            {"terms": list(r.terms), "r2": r.r2, "q2_loo": r.q2_loo} for r in res.table.head(10).itertuples()
+        ]
+
+    # ---- fit and validate
+    model = OLSModel(kfold=st.kfold, n_permutations=st.n_permutations, seed=st.seed,
+                     temperature_k=st.temperature_k)
+    Xtr = train[list(terms)].apply(pd.to_numeric, errors="coerce")
+    model.fit(Xtr, train[target].to_numpy(float), ids=list(train.index))
+    notes += model.warnings_
+    external = None
+    if len(test):
+        Xte = test[list(terms)].apply(pd.to_numeric, errors="coerce")
+        external = model.external_validation(Xte, test[target].to_numpy(float))
+
+    # ---- predictions for every candidate
+    allX = table.set_index(columns.ID)[list(terms)].apply(pd.to_numeric, errors="coerce")
+    pi = model.predict_interval(allX)
+    pred = pd.DataFrame({columns.ID: allX.index})
+    for t in terms:
+        pred[t] = allX[t].to_numpy()
+    pred[pred_col] = pi["prediction"].to_numpy()
+    pred[pred_col + columns.PI_LOW_SUFFIX] = pi["pi_low"].to_numpy()
+    pred[pred_col + columns.PI_HIGH_SUFFIX] = pi["pi_high"].to_numpy()
+    pred[columns.LEVERAGE] = pi["leverage"].to_numpy()
+    pred[columns.LEVERAGE_THRESHOLD] = model.leverage_threshold_
+    pred[columns.DOMAIN] = pi["domain"].to_numpy()
+    pred[columns.RATE_ORDER] = st.rate_order
+    membership = pd.Series("", index=allX.index)
+    membership[membership.index.isin(train.index)] = "train"
+    membership[membership.index.isin(test.index)] = "test"
+    pred[columns.MODEL_SET] = membership.to_numpy()
+    pred[target] = pred[columns.ID].map(data[target])
+    pred[columns.STANDARDISED_RESIDUAL] = pred[columns.ID].map(
+        pd.Series(model.standardised_resid_, index=model.ids_)
+    )
+    # every candidate's own columns (identity, potentials, descriptors, user columns) come
+    # along, so later steps read one table
+    carried = table.drop(columns=[c for c in pred.columns if c != columns.ID and c in table.columns])
+    pred = carried.merge(pred, on=columns.ID, how="left")
+    out_dir = campaign.results_dir
+    out_dir.mkdir(parents=True, exist_ok=True)
+    pred_path = out_dir / "predictions.csv"
+    pred.to_csv(pred_path, index=False)
+    n_extra = int((pred[columns.DOMAIN] == "extrapolating").sum())
+
+    context = {
+        "campaign": campaign.name,
+        "target": target,
+        "prediction_column": pred_col,
+        "rate_order": st.rate_order,
+        "potential_column": pot_col,
+        "split": split,
+        "n_test": int(len(test)),
+        "external_validation": external,
+        "search": search_summary,
+        "settings": {k: (list(v) if isinstance(v, tuple) else v) for k, v in st.__dict__.items()},
+        "notes": notes,
+    }
+    model_path = model.save(out_dir / "model.json", extra=context)
+
+    # ---- figures
+    fig_dir = out_dir / "figures"
+    figs = [
+        model_plots.williams_plot(
+            model.hat_, model.standardised_resid_, model.leverage_threshold_, fig_dir / "williams.png",
+            test_leverage=pi.loc[test.index, "leverage"].to_numpy() if len(test) else None,
+            test_residual=(
+                (test[target].to_numpy(float) - pi.loc[test.index, "prediction"].to_numpy())
+                / (model.residual_standard_error_ * np.sqrt(1 + pi.loc[test.index, "leverage"].to_numpy()))
+            ) if len(test) else None,
+        ),
+        model_plots.observed_vs_predicted(
+            model.y_, model.fitted_, fig_dir / "observed_vs_predicted.png", label=target,
+            observed_test=test[target].to_numpy(float) if len(test) else None,
+            predicted_test=pi.loc[test.index, "prediction"].to_numpy() if len(test) else None,
+            loo_predicted_train=model.y_ - model.loo_resid_,
+        ),
+    ]
+    if model.y_randomisation_ is not None:
+        yr = model.y_randomisation_
+        figs.append(model_plots.y_randomisation_histogram(
+            yr.r2, yr.q2, model.r2_, model.q2_loo_, fig_dir / "y_randomisation.png"))
+    return FitReport(
+        terms=tuple(terms), target=target, coefficients=model.coefficient_table(),
+        statistics=model.statistics(), external=external, search=search_summary,
+        n_train=model.n_, n_test=int(len(test)), n_extrapolating=n_extra,
+        model_path=model_path, predictions_path=pred_path, figures=tuple(figs), notes=tuple(notes),
+    )
+
+
+def _pool(table: pd.DataFrame, st: ModelSettings, pot_col: str) -> list[str]:
+    if st.pool:
+        pool = [pot_col if c == POTENTIAL_TERM else c for c in st.pool]
+        missing = [c for c in pool if c not in table.columns]
+        if missing:
+            raise DataError(f"[model] pool column(s) {', '.join(missing)} not in the descriptor table")
+        return pool
+    pool = [pot_col] + [
+        str(c) for c in table.columns
+        if pd.api.types.is_numeric_dtype(table[c]) and not _non_descriptor(str(c))
+        and str(c) not in st.exclude
+    ]
+    return [c for c in pool if c not in st.exclude]

@@ -1,0 +1,156 @@
+"""Tests of the linear calibration of computed potentials."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy import stats
+
+from redoxfront import columns
+from redoxfront.statistics.calibration import (
+    STATUS_CALIBRATED, STATUS_OUTSIDE, STATUS_UNCALIBRATED, Calibration, CalibrationSettings,
+    calibrate_campaign, calibrate_table, read_measured_potentials,
+)
+from redoxfront.campaign import load_campaign
+from redoxfront.errors import DataError, InputError, SettingsError
+
+RAW = columns.potential_uncalibrated("fc")
+CAL = columns.potential_calibrated("fc")
+
+
+def test_line_equals_scipy_linregress():
+    rng = np.random.default_rng(2)
+    x = rng.uniform(0.0, 1.5, 12)
+    y = 0.12 + 0.87 * x + rng.normal(scale=0.03, size=12)
+    line = Calibration().fit(x, y).line_
+    ref = stats.linregress(x, y)
+    # scipy.stats.linregress (reference library): slope, intercept and their standard errors
+    assert line.slope == pytest.approx(ref.slope, rel=1e-10)
+    assert line.intercept_v == pytest.approx(ref.intercept, rel=1e-10)
+    assert line.slope_se == pytest.approx(ref.stderr, rel=1e-8)
+    assert line.intercept_se_v == pytest.approx(ref.intercept_stderr, rel=1e-8)
+    assert line.r2 == pytest.approx(ref.rvalue**2, rel=1e-10)
+    assert line.rmse_v == pytest.approx(np.sqrt(np.mean((y - ref.intercept - ref.slope * x) ** 2)), rel=1e-10)
+    loo = []
+    for i in range(12):
+        k = np.arange(12) != i
+        r = stats.linregress(x[k], y[k])
+        loo.append(abs(y[i] - r.intercept - r.slope * x[i]))
+    assert line.loo_mae_v == pytest.approx(np.mean(loo), rel=1e-9)  # LOO by refitting
+    assert (line.computed_min_v, line.computed_max_v) == (x.min(), x.max())
+
+
+def make_table(n: int = 10) -> pd.DataFrame:
+    x = np.linspace(0.2, 1.1, n)
+    t = pd.DataFrame({"id": [f"dmb-{i}" for i in range(n)], "status": "ok", RAW: x,
+                      "class": ["a"] * (n // 2) + ["b"] * (n - n // 2)})
+    t.loc[n - 1, "status"] = "failed: SCC"
+    t.loc[n - 1, RAW] = np.nan
+    return t
+
+
+def test_calibrate_table_statuses_and_interval():
+    t = pd.concat([make_table(), pd.DataFrame({"id": ["far"], "status": "ok", RAW: [2.0], "class": ["a"]})],
+                  ignore_index=True)
+    measured = pd.DataFrame({"id": [f"dmb-{i}" for i in range(6)],
+                             "measured_v": 0.05 + 0.9 * t[RAW].iloc[:6] + [0.01, -0.01, 0.0, 0.02, -0.02, 0.0]})
+    out, rep = calibrate_table(t, measured, "fc")
+    assert rep.n_measured_used == 6 and len(rep.lines) == 1
+    st = out.set_index("id")[columns.CALIBRATION_STATUS]
+    assert st["dmb-2"] == STATUS_CALIBRATED
+    assert st["dmb-7"] == STATUS_OUTSIDE  # raw 0.9 V, fitted on 0.2..0.6 V
+    assert st["far"] == STATUS_OUTSIDE
+    assert st["dmb-9"] == STATUS_UNCALIBRATED and np.isnan(out.loc[9, CAL])
+    lo, hi = columns.potential_calibrated_pi_low("fc"), columns.potential_calibrated_pi_high("fc")
+    assert (out[lo] < out[CAL]).iloc[:9].all() and (out[hi] > out[CAL]).iloc[:9].all()
+    # the interval widens away from the data (leverage)
+    assert (out.loc[10, hi] - out.loc[10, lo]) > (out.loc[2, hi] - out.loc[2, lo])
+    assert out.loc[2, CAL] == pytest.approx(0.05 + 0.9 * out.loc[2, RAW], abs=0.02)
+    assert any("outside the calibration range" in n for n in rep.notes)
+
+
+def test_without_measurements_everything_uncalibrated():
+    out, rep = calibrate_table(make_table(), None, "fc")
+    assert out[columns.CALIBRATION_STATUS].eq(STATUS_UNCALIBRATED).all()
+    assert out[CAL].isna().all()
+    assert rep.lines == ()
+
+
+def test_per_class_lines():
+    t = make_table(12)
+    x = t[RAW].to_numpy()
+    yv = np.where(t["class"] == "a", 0.1 + 1.0 * x, -0.2 + 0.8 * x)
+    measured = pd.DataFrame({"id": t["id"].iloc[:11], "measured_v": yv[:11] + 0.001 * np.sin(np.arange(11)),
+                             "class": t["class"].iloc[:11]})
+    out, rep = calibrate_table(t, measured, "fc", CalibrationSettings(per_class=True, min_points_per_class=4))
+    groups = {l.group: l for l in rep.lines}
+    assert set(groups) == {"all", "a", "b"}
+    assert groups["a"].slope == pytest.approx(1.0, abs=0.01)
+    assert groups["b"].slope == pytest.approx(0.8, abs=0.01)
+    assert out.loc[0, columns.CALIBRATION_GROUP] == "a" and out.loc[8, columns.CALIBRATION_GROUP] == "b"
+    with pytest.raises(DataError, match="needs a 'class' column"):
+        calibrate_table(t.drop(columns="class"), measured, "fc", CalibrationSettings(per_class=True))
+
+
+def test_too_few_measurements_raise():
+    t = make_table()
+    measured = pd.DataFrame({"id": ["dmb-0", "dmb-1"], "measured_v": [0.3, 0.5]})
+    with pytest.raises(DataError, match="need at least 3; add 1 more"):
+        calibrate_table(t, measured, "fc")
+
+
+def test_read_measured_converts_references(tmp_path):
+    p = tmp_path / "m.csv"
+    pd.DataFrame({"id": ["a", "b", "c", "d", "a"], "potential_v": [1.0, 0.5, "n/a", 0.2, 1.2],
+                  "reference": ["SCE", "Fc+/Fc", "SCE", "calomel?", "SCE"], "solvent": "MeCN"}).to_csv(p, index=False)
+    m, notes = read_measured_potentials(p, "fc")
+    got = m.set_index("id")["measured_v"]
+    # Connelly & Geiger, Chem. Rev. 1996, 96, 877: Fc+/Fc = +0.40 V vs SCE in MeCN
+    assert got["a"] == pytest.approx(((1.0 - 0.40) + (1.2 - 0.40)) / 2)
+    assert got["b"] == pytest.approx(0.5)
+    assert set(got.index) == {"a", "b"}
+    assert any("row 4 (c)" in n for n in notes) and any("calomel?" in n for n in notes)
+    assert any("averaged" in n for n in notes)
+    bad = tmp_path / "bad.csv"
+    pd.DataFrame({"id": ["a"], "potential_v": [1.0]}).to_csv(bad, index=False)
+    with pytest.raises(InputError, match="missing column\\(s\\) reference, solvent"):
+        read_measured_potentials(bad, "fc")
+
+
+def test_calibrate_campaign_writes_files(tmp_path):
+    (tmp_path / "results").mkdir()
+    (tmp_path / "inputs").mkdir()
+    t = make_table()
+    t.to_csv(tmp_path / "results" / "descriptors.csv", index=False)
+    pd.DataFrame({"id": [f"dmb-{i}" for i in range(5)], "potential_v": 0.45 + 0.9 * t[RAW].iloc[:5] + [0, .01, -.01, .005, 0],
+                  "reference": "SCE", "solvent": "MeCN"}).to_csv(tmp_path / "inputs" / "m.csv", index=False)
+    (tmp_path / "campaign.toml").write_text(
+        'name = "invented"\n[inputs]\nmeasured_potentials = "inputs/m.csv"\n[calibration]\nper_class = false\n')
+    out = calibrate_campaign(load_campaign(tmp_path))
+    again = pd.read_csv(tmp_path / "results" / "descriptors.csv")
+    assert CAL in again.columns and len(again) == 10
+    np.testing.assert_allclose(again[CAL], out[CAL], rtol=1e-12)
+    info = json.loads((tmp_path / "results" / "calibration.json").read_text())
+    # measured vs SCE converted to Fc: intercept 0.45 - 0.40 = 0.05 V
+    assert info["lines"][0]["intercept_v"] == pytest.approx(0.05, abs=0.02)
+    assert info["lines"][0]["slope"] == pytest.approx(0.9, abs=0.05)
+    assert (tmp_path / "results" / "figures" / "calibration_parity.png").stat().st_size > 1000
+    (tmp_path / "campaign.toml").write_text('[calibration]\nper_clas = true\n')
+    with pytest.raises(SettingsError, match="unknown key 'per_clas'"):
+        calibrate_campaign(load_campaign(tmp_path))
+
+
+def test_cli_calibrate(tmp_path):
+    from click.testing import CliRunner
+
+    from redoxfront.cli import main
+
+    (tmp_path / "results").mkdir()
+    make_table().to_csv(tmp_path / "results" / "descriptors.csv", index=False)
+    (tmp_path / "campaign.toml").write_text('name = "invented"\n')
+    r = CliRunner().invoke(main, ["calibrate", str(tmp_path)])
+    assert r.exit_code == 0, r.output
+    assert "10 candidate(s): uncalibrated" in r.output
