@@ -29,12 +29,15 @@ import numpy as np  # noqa: E402
 from rdkit import Chem  # noqa: E402
 
 from redoxfront.campaign import ComputeSettings  # noqa: E402
-from redoxfront.compute.step import compute_candidates  # noqa: E402
-from redoxfront.engine.optimizer import optimize_geometry, optimize_geometry_lbfgs_baseline  # noqa: E402
 from redoxfront.candidates.conformers import generate_conformers  # noqa: E402
 from redoxfront.candidates.structures import read_candidates, redox_states  # noqa: E402
-from redoxfront.units import HARTREE_KCAL_PER_MOL  # noqa: E402
+from redoxfront.compute.step import compute_candidates  # noqa: E402
+from redoxfront.engine.optimizer import (  # noqa: E402
+    optimize_geometry,
+    optimize_geometry_lbfgs_baseline,
+)
 from redoxfront.engine.xtb import TbliteEngine  # noqa: E402
+from redoxfront.units import HARTREE_KCAL_PER_MOL  # noqa: E402
 
 INVENTED = Path(__file__).resolve().parent / "invented_candidates.csv"
 

@@ -2,7 +2,9 @@
 
 import os
 
-from redoxfront.campaign import THREAD_VARIABLES  # imports no numpy: set before it loads
+from redoxfront.campaign import (
+    THREAD_VARIABLES,  # imports no numpy: set before it loads
+)
 
 for _var in THREAD_VARIABLES:
     os.environ.setdefault(_var, "1")

@@ -12,10 +12,14 @@ from rdkit.Chem import Descriptors
 from rdkit.Chem.rdMolDescriptors import CalcMolFormula
 
 from redoxfront.campaign import ComputeSettings
+from redoxfront.candidates.library import (
+    LibrarySettings,
+    attachment_points,
+    build_library,
+)
+from redoxfront.candidates.structures import read_candidates
 from redoxfront.cli import main
 from redoxfront.errors import SettingsError
-from redoxfront.candidates.library import LibrarySettings, attachment_points, build_library
-from redoxfront.candidates.structures import read_candidates
 
 SUBS = ["H", "C", "C(C)(C)C", "[*]OC", "C(F)(F)F"]
 

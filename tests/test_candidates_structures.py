@@ -5,9 +5,13 @@ import pytest
 from rdkit import Chem
 
 from redoxfront.campaign import ComputeSettings, ConformerSettings
-from redoxfront.errors import InputError
 from redoxfront.candidates.conformers import generate_conformers
-from redoxfront.candidates.structures import parse_candidate, read_candidates, redox_states
+from redoxfront.candidates.structures import (
+    parse_candidate,
+    read_candidates,
+    redox_states,
+)
+from redoxfront.errors import InputError
 
 S = ComputeSettings()
 

@@ -13,6 +13,8 @@ import pytest
 
 from redoxfront import columns as C
 from redoxfront.campaign import ComputeSettings, ConformerSettings, load_campaign
+from redoxfront.candidates.structures import parse_candidate
+from redoxfront.compute.status import compute_status
 from redoxfront.compute.step import (
     CONFORMER_ENTRY,
     candidate_task,
@@ -21,10 +23,8 @@ from redoxfront.compute.step import (
     compute_candidates,
     conformer_key,
 )
-from redoxfront.engine.potentials import potential_v, reduction_free_energy_ev
-from redoxfront.compute.status import compute_status
 from redoxfront.compute.store import Store
-from redoxfront.candidates.structures import parse_candidate
+from redoxfront.engine.potentials import potential_v, reduction_free_energy_ev
 
 FAST = ConformerSettings(n_generate=2, refine_lowest=1)
 SMALL = ["COc1ccccc1", "Cc1ccc(C)cc1", "COc1ccc(C)cc1", "Oc1ccccc1"]

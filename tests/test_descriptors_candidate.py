@@ -18,8 +18,8 @@ from redoxfront.descriptors import (
 )
 from redoxfront.descriptors.ensemble import boltzmann_weights, summarise
 from redoxfront.descriptors.sites import match_sites
-from redoxfront.errors import SettingsError
 from redoxfront.engine.records import CandidateStates, ConformerResult, StateResult
+from redoxfront.errors import SettingsError
 from redoxfront.units import HARTREE_EV, HARTREE_KCAL_PER_MOL
 
 # ---- sites ----------------------------------------------------------------------------

@@ -10,8 +10,8 @@ from rdkit.Chem import AllChem
 from redoxfront.descriptors.sterimol import (
     BONDI_RADII_ANGSTROM,
     X_H_BOND_ANGSTROM,
-    substituent_atoms,
     sterimol,
+    substituent_atoms,
     vdw_radii,
 )
 from redoxfront.errors import InputError

@@ -13,8 +13,8 @@ from redoxfront.engine.optimizer import (
     optimize_geometry,
     optimize_geometry_lbfgs_baseline,
 )
-from redoxfront.units import ANGSTROM_BOHR
 from redoxfront.engine.xtb import TbliteEngine
+from redoxfront.units import ANGSTROM_BOHR
 
 
 def _mmff(smiles, seed=5):

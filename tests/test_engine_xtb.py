@@ -5,8 +5,8 @@ import pytest
 from rdkit import Chem
 from rdkit.Chem import AllChem
 
-from redoxfront.errors import SettingsError
 from redoxfront.engine.xtb import TbliteEngine, XtbPythonEngine, make_engine
+from redoxfront.errors import SettingsError
 
 
 def _geometry(smiles: str):

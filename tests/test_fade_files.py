@@ -7,11 +7,18 @@ import pandas as pd
 import pytest
 
 from redoxfront.columns import (
-    CHARGE_CAPACITY, CYCLE, DISCHARGE_CAPACITY, NOTE, RETENTION, SIGNAL, TIME_H, USED,
+    CHARGE_CAPACITY,
+    CYCLE,
+    DISCHARGE_CAPACITY,
+    NOTE,
+    RETENTION,
+    SIGNAL,
+    TIME_H,
+    USED,
 )
-from redoxfront.fade.files import load_series, role_of, split_header
-from redoxfront.fade.cleanup import flag_spikes
 from redoxfront.errors import InputError
+from redoxfront.fade.cleanup import flag_spikes
+from redoxfront.fade.files import load_series, role_of, split_header
 
 
 def point_level_frame(n_cycles: int = 8, q0: float = 20.0, k_per_h: float = 0.01,

@@ -13,12 +13,22 @@ from click.testing import CliRunner
 
 from redoxfront import columns
 from redoxfront.cli import main
-from redoxfront.errors import DataError, SettingsError
 from redoxfront.columns import RATE_TABLE_COLUMNS
+from redoxfront.errors import DataError, SettingsError
 from redoxfront.fade.rate_laws import (
-    MODELS, FadeModel, aicc, choose_model, first_order_k_from_retention, retention_percent_per_day,
+    MODELS,
+    FadeModel,
+    aicc,
+    choose_model,
+    first_order_k_from_retention,
+    retention_percent_per_day,
 )
-from redoxfront.fade.step import FadeSettings, fade_settings, fit_fade_file, fit_fade_folder
+from redoxfront.fade.step import (
+    FadeSettings,
+    fade_settings,
+    fit_fade_file,
+    fit_fade_folder,
+)
 
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples" / "dimethoxybenzene-catholytes"
 

@@ -12,7 +12,7 @@ import graphlib
 from pathlib import Path
 
 PACKAGE_ROOT = Path(__file__).resolve().parents[1] / "src" / "redoxfront"
-TOP_LEVEL_MODULES = {"__init__", "campaign", "cli", "columns", "errors", "figure_style", "pipeline", "units"}
+TOP_LEVEL_MODULES = {"__init__", "campaign", "cli", "columns", "errors", "figure_style", "outputs", "pipeline", "units"}
 STAGE_PACKAGES = {"candidates", "engine", "compute", "descriptors", "fade", "statistics", "ranking", "report"}
 
 

@@ -10,6 +10,7 @@ import pytest
 
 from redoxfront import columns as col
 from redoxfront.campaign import section_from_mapping
+from redoxfront.errors import InputError, SettingsError
 from redoxfront.ranking.cell_metrics import (
     CellSettings,
     cell_metrics,
@@ -19,7 +20,6 @@ from redoxfront.ranking.cell_metrics import (
     resolve_rate_order,
     volumetric_capacity_ah_per_l,
 )
-from redoxfront.errors import InputError, SettingsError
 from redoxfront.units import AH_PER_MOL_ELECTRONS
 
 REF = "fc"

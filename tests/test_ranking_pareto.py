@@ -8,8 +8,8 @@ import numpy as np
 import paretoset
 import pytest
 
-from redoxfront.ranking import pareto as P
 from redoxfront.errors import DataError
+from redoxfront.ranking import pareto as P
 
 
 def brute_ranks(p: np.ndarray) -> np.ndarray:

@@ -10,9 +10,9 @@ import pytest
 from click.testing import CliRunner
 
 from redoxfront import columns as col
-from redoxfront.ranking import step as R
 from redoxfront.campaign import section_from_mapping
 from redoxfront.errors import SettingsError
+from redoxfront.ranking import step as R
 
 
 def test_ranking_settings_validation():

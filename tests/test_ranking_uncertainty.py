@@ -6,9 +6,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from redoxfront.errors import DataError
 from redoxfront.ranking import pareto as P
 from redoxfront.ranking import uncertainty as U
-from redoxfront.errors import DataError
 
 
 def brute_front_counts(draws: np.ndarray) -> np.ndarray:

@@ -10,12 +10,18 @@ import pytest
 from scipy import stats
 
 from redoxfront import columns
-from redoxfront.statistics.calibration import (
-    STATUS_CALIBRATED, STATUS_OUTSIDE, STATUS_UNCALIBRATED, Calibration, CalibrationSettings,
-    calibrate_campaign, calibrate_table, read_measured_potentials,
-)
 from redoxfront.campaign import load_campaign
 from redoxfront.errors import DataError, InputError, SettingsError
+from redoxfront.statistics.calibration import (
+    STATUS_CALIBRATED,
+    STATUS_OUTSIDE,
+    STATUS_UNCALIBRATED,
+    Calibration,
+    CalibrationSettings,
+    calibrate_campaign,
+    calibrate_table,
+    read_measured_potentials,
+)
 
 RAW = columns.potential_uncalibrated("fc")
 CAL = columns.potential_calibrated("fc")

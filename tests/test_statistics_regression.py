@@ -15,7 +15,6 @@ from statsmodels.stats.outliers_influence import variance_inflation_factor
 from redoxfront.errors import DataError
 from redoxfront.statistics.regression import OLSModel, load_model
 
-
 # ---------------------------------------------------------------- NIST Longley
 # NIST StRD, Longley (1967) dataset, certified values (from memory: NIST StRD
 # Linear Regression, "Longley" certified values page, 15 significant digits).

@@ -11,8 +11,8 @@ import pytest
 from redoxfront import columns
 from redoxfront.campaign import load_campaign
 from redoxfront.errors import DataError, SettingsError
-from redoxfront.statistics.step import fit_campaign
 from redoxfront.statistics.regression import load_model
+from redoxfront.statistics.step import fit_campaign
 
 
 # ---------------------------------------------------------- campaign end to end

@@ -8,11 +8,15 @@ import pytest
 from scipy.spatial.distance import cdist, pdist, squareform
 
 from redoxfront import columns
-from redoxfront.statistics.training_set import (
-    choose_training_for_campaign, choose_training_set, design_training_set, kennard_stone,
-    kennard_stone_split, standardise,
-)
 from redoxfront.errors import DataError
+from redoxfront.statistics.training_set import (
+    choose_training_for_campaign,
+    choose_training_set,
+    design_training_set,
+    kennard_stone,
+    kennard_stone_split,
+    standardise,
+)
 
 
 @pytest.fixture()

@@ -20,7 +20,11 @@ from pathlib import Path
 from typing import Any, Mapping, TypeVar
 
 from redoxfront.errors import SettingsError
-from redoxfront.units import ABSOLUTE_SHE_V, REFERENCE_ELECTRODES_V_VS_SHE, reference_key
+from redoxfront.units import (
+    ABSOLUTE_SHE_V,
+    REFERENCE_ELECTRODES_V_VS_SHE,
+    reference_key,
+)
 
 THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 """Environment variables that set BLAS/OpenMP threads per process ([compute] threads_per_worker);

@@ -156,8 +156,8 @@ def fade_command(campaign: Path, input_path: Path | None, out: Path | None, quie
 def calibrate_command(campaign: Path) -> None:
     """Calibrate computed potentials against measured ones (adds columns to descriptors.csv)."""
     from redoxfront import columns
-    from redoxfront.statistics.calibration import calibrate_campaign
     from redoxfront.campaign import load_campaign
+    from redoxfront.statistics.calibration import calibrate_campaign
 
     table = calibrate_campaign(load_campaign(campaign))
     info = table.attrs.get("calibration", {})

@@ -12,6 +12,8 @@ from pathlib import Path
 
 import matplotlib
 
+from redoxfront.outputs import replacing
+
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 
@@ -48,11 +50,10 @@ def save_figure(fig: "plt.Figure", path: str | Path, *, dpi: int = 130, crop: bo
     where the automatic layout does not apply) instead of laying the axes out.
     """
     out = Path(path)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    if crop:
-        fig.savefig(out, dpi=dpi, bbox_inches="tight")
-    else:
+    if not crop:
         fig.tight_layout()
-        fig.savefig(out, dpi=dpi)
+    with replacing(out) as tmp:
+        fig.savefig(tmp, dpi=dpi, format=out.suffix.lstrip(".") or "png",
+                    bbox_inches="tight" if crop else None)
     plt.close(fig)
     return out

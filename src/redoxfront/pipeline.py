@@ -33,12 +33,12 @@ def run_campaign(
     echo: Callable[[str], None] = print,
 ) -> RunSummary:
     """Run every step that has its inputs; return a summary (also echoed as it goes)."""
-    from redoxfront.statistics.calibration import calibrate_campaign
     from redoxfront.compute.step import compute_campaign
-    from redoxfront.report import write_report
     from redoxfront.fade.step import fade_campaign
-    from redoxfront.statistics.step import fit_campaign
     from redoxfront.ranking.step import rank_campaign, ranking_objectives
+    from redoxfront.report import write_report
+    from redoxfront.statistics.calibration import calibrate_campaign
+    from redoxfront.statistics.step import fit_campaign
 
     camp: Campaign = load_campaign(path)
     summary = RunSummary()

@@ -25,6 +25,7 @@ from tqdm.auto import tqdm
 from redoxfront.campaign import Campaign, section_from_mapping
 from redoxfront.columns import substituent_column
 from redoxfront.errors import SettingsError
+from redoxfront.outputs import write_csv
 
 HYDROGEN = "H"
 """Substituent text for an unsubstituted site."""
@@ -213,7 +214,7 @@ def library_for_campaign(campaign: Campaign, *, progress: bool = True) -> tuple[
     combos = math.prod(len(v) for v in settings.substituents.values())
     out = campaign.path(settings.output)
     out.parent.mkdir(parents=True, exist_ok=True)
-    table.to_csv(out, index=False)
+    write_csv(table, out)
     return out, combos, len(table), problems
 
 

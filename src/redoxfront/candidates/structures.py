@@ -19,9 +19,13 @@ from rdkit import Chem, RDLogger
 from rdkit.Chem import Descriptors
 
 from redoxfront.campaign import ROLES, ComputeSettings
-from redoxfront.errors import InputError
-from redoxfront.engine.records import STATE_CHARGED, STATE_DISCHARGED, STATE_INTERMEDIATE
+from redoxfront.engine.records import (
+    STATE_CHARGED,
+    STATE_DISCHARGED,
+    STATE_INTERMEDIATE,
+)
 from redoxfront.engine.xtb import SUPPORTED_ELEMENTS_MAX_Z
+from redoxfront.errors import InputError
 
 RDLogger.DisableLog("rdApp.*")
 

@@ -20,7 +20,6 @@ from tqdm.auto import tqdm
 from redoxfront.campaign import THREAD_VARIABLES
 
 
-
 def _init_worker(threads: int) -> None:
     for var in THREAD_VARIABLES:
         os.environ[var] = str(threads)

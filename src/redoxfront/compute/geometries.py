@@ -16,14 +16,13 @@ from rdkit import Chem
 from rdkit.Geometry import Point3D
 
 from redoxfront.engine.records import CandidateStates
+from redoxfront.outputs import replacing
 
 
 def write_geometries(candidates: list[CandidateStates], path: str | Path) -> int:
     """Write the lowest conformer of every state of every candidate to ``path``; return the count."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
     written = 0
-    with Chem.SDWriter(str(path)) as writer:
+    with replacing(path) as tmp, Chem.SDWriter(str(tmp)) as writer:
         for cs in candidates:
             template = Chem.AddHs(Chem.MolFromSmiles(cs.smiles))
             for name, state in cs.states.items():

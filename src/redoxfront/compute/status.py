@@ -12,10 +12,10 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from redoxfront.campaign import Campaign
-from redoxfront.compute.step import checkpoint_name
-from redoxfront.errors import InputError
-from redoxfront.compute.store import Store
 from redoxfront.candidates.structures import candidate_states, read_candidates
+from redoxfront.compute.step import checkpoint_name
+from redoxfront.compute.store import Store
+from redoxfront.errors import InputError
 
 
 @dataclass(frozen=True)

@@ -20,21 +20,30 @@ from rdkit import Chem
 
 from redoxfront import columns as C
 from redoxfront.campaign import Campaign, ComputeSettings
-from redoxfront.errors import EngineError, InputError
-from redoxfront.descriptors import descriptors_for_candidate
-from redoxfront.compute.executors import map_tasks
-from redoxfront.compute.geometries import write_geometries
-from redoxfront.engine.optimizer import optimize_geometry
-from redoxfront.engine.potentials import potential_v, reduction_free_energy_ev
-from redoxfront.engine.records import POSITION_DECIMALS, CandidateStates, ConformerResult, StateResult
-from redoxfront.compute.store import Store
 from redoxfront.candidates.conformers import generate_conformers
 from redoxfront.candidates.structures import (
-    Candidate, RedoxState, candidate_states, read_candidates, redox_states,
+    Candidate,
+    RedoxState,
+    candidate_states,
+    read_candidates,
+    redox_states,
 )
-from redoxfront.units import HARTREE_EV
+from redoxfront.compute.executors import map_tasks
+from redoxfront.compute.geometries import write_geometries
+from redoxfront.compute.store import Store
+from redoxfront.descriptors import descriptors_for_candidate
+from redoxfront.engine.optimizer import optimize_geometry
+from redoxfront.engine.potentials import potential_v, reduction_free_energy_ev
+from redoxfront.engine.records import (
+    POSITION_DECIMALS,
+    CandidateStates,
+    ConformerResult,
+    StateResult,
+)
 from redoxfront.engine.xtb import Engine, EngineResult, make_engine
-
+from redoxfront.errors import EngineError, InputError
+from redoxfront.outputs import write_csv
+from redoxfront.units import HARTREE_EV
 
 CONFORMER_ENTRY = "conformer_ensemble"
 """Store entry (in the place of a state name) for the RDKit conformer search of a candidate."""
@@ -459,12 +468,12 @@ def compute_campaign(
     table = pd.DataFrame([o.row for o in outcomes])
     out = Path(out_path) if out_path else campaign.results_dir / "descriptors.csv"
     out.parent.mkdir(parents=True, exist_ok=True)
-    table.to_csv(out, index=False)
+    write_csv(table, out)
     problems_table = pd.DataFrame(
         [{"file": p.source, "row": p.row, "field": p.field, "reason": p.reason} for p in problems],
         columns=["file", "row", "field", "reason"],
     )
-    problems_table.to_csv(out.parent / "input_problems.csv", index=False)
+    write_csv(problems_table, out.parent / "input_problems.csv")
     write_geometries([o.states for o in outcomes if o.states is not None], out.parent / "geometries.sdf")
     return ComputeReport(
         table=table,

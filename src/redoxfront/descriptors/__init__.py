@@ -31,17 +31,20 @@ from redoxfront.descriptors.electronic import (
     dipole_debye,
     reorganisation_energy,
 )
-from redoxfront.descriptors.ensemble import EnsembleWeights, boltzmann_weights, summarise
+from redoxfront.descriptors.ensemble import (
+    EnsembleWeights,
+    boltzmann_weights,
+    summarise,
+)
 from redoxfront.descriptors.sites import (
     SiteMatch,
-    SitesSettings,
     SiteSpec,
+    SitesSettings,
     match_sites,
     sites_from_mapping,
 )
-from redoxfront.descriptors.sterimol import substituent_atoms, sterimol, vdw_radii
+from redoxfront.descriptors.sterimol import sterimol, substituent_atoms, vdw_radii
 from redoxfront.descriptors.surface import atom_sasa
-from redoxfront.errors import RedoxfrontError
 from redoxfront.engine.records import (
     STATE_CHARGED,
     STATE_DISCHARGED,
@@ -49,6 +52,7 @@ from redoxfront.engine.records import (
     CandidateStates,
     StateResult,
 )
+from redoxfront.errors import RedoxfrontError
 from redoxfront.units import HARTREE_EV, STANDARD_TEMPERATURE_K
 
 __all__ = [

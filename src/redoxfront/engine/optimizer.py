@@ -21,8 +21,8 @@ import scipy.linalg
 import scipy.linalg.lapack
 
 from redoxfront.campaign import OptimizerSettings
-from redoxfront.units import ANGSTROM_BOHR, BOHR_ANGSTROM
 from redoxfront.engine.xtb import Engine, EngineResult
+from redoxfront.units import ANGSTROM_BOHR, BOHR_ANGSTROM
 
 # Lindh 1995 model Hessian parameters (atomic units), rows = periods 1, 2, >=3.
 _LINDH_ALPHA = np.array([[1.0000, 0.3949, 0.3949], [0.3949, 0.2800, 0.2800], [0.3949, 0.2800, 0.2800]])

@@ -18,7 +18,12 @@ the calibration absorbs their mostly constant contribution.
 
 from __future__ import annotations
 
-from redoxfront.units import ABSOLUTE_SHE_V, HARTREE_EV, REFERENCE_ELECTRODES_V_VS_SHE, reference_key
+from redoxfront.units import (
+    ABSOLUTE_SHE_V,
+    HARTREE_EV,
+    REFERENCE_ELECTRODES_V_VS_SHE,
+    reference_key,
+)
 
 
 def reduction_free_energy_ev(e_prev_eh: float, e_next_eh: float, role: str) -> float:

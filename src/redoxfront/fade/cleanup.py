@@ -17,8 +17,15 @@ import numpy as np
 import pandas as pd
 
 from redoxfront.columns import (
-    CHARGE_CAPACITY, COULOMBIC_EFFICIENCY, CYCLE, DISCHARGE_CAPACITY, NOTE, RETENTION, SIGNAL,
-    TIME_H, USED,
+    CHARGE_CAPACITY,
+    COULOMBIC_EFFICIENCY,
+    CYCLE,
+    DISCHARGE_CAPACITY,
+    NOTE,
+    RETENTION,
+    SIGNAL,
+    TIME_H,
+    USED,
 )
 from redoxfront.errors import InputError
 

@@ -12,7 +12,15 @@ from typing import Any, Mapping
 import numpy as np
 import pandas as pd
 
-from redoxfront.columns import CELL_TYPE, CI_HIGH_SUFFIX, CI_LOW_SUFFIX, K_FIRST, SIGNAL, TIME_H, USED
+from redoxfront.columns import (
+    CELL_TYPE,
+    CI_HIGH_SUFFIX,
+    CI_LOW_SUFFIX,
+    K_FIRST,
+    SIGNAL,
+    TIME_H,
+    USED,
+)
 from redoxfront.fade.rate_laws import FadeModel, ModelChoice
 from redoxfront.figure_style import ACCENT, INK, plt, save_figure, style_axes
 

@@ -21,10 +21,14 @@ import numpy as np
 import pandas as pd
 
 from redoxfront.columns import CYCLE, TIME_H, USED
-from redoxfront.fade.cleanup import (
-    decay_table, finish_cycle_table, fix_counter_resets, numeric, reduce_to_cycles,
-)
 from redoxfront.errors import InputError
+from redoxfront.fade.cleanup import (
+    decay_table,
+    finish_cycle_table,
+    fix_counter_resets,
+    numeric,
+    reduce_to_cycles,
+)
 from redoxfront.units import SECONDS_PER_DAY, SECONDS_PER_HOUR
 
 # ---- roles a column can play ----------------------------------------------------

@@ -33,8 +33,18 @@ import pandas as pd
 from scipy import optimize, stats
 
 from redoxfront.columns import (
-    CI_HIGH_SUFFIX, CI_LOW_SUFFIX, FADE_AICC, FADE_AKAIKE_WEIGHT, FADE_CHOSEN, FADE_DELTA_AICC,
-    FADE_MODEL, FADE_N_PARAMS, FADE_RSS, FADE_Y0, FADE_Y_INF, K_FADE,
+    CI_HIGH_SUFFIX,
+    CI_LOW_SUFFIX,
+    FADE_AICC,
+    FADE_AKAIKE_WEIGHT,
+    FADE_CHOSEN,
+    FADE_DELTA_AICC,
+    FADE_MODEL,
+    FADE_N_PARAMS,
+    FADE_RSS,
+    FADE_Y0,
+    FADE_Y_INF,
+    K_FADE,
 )
 from redoxfront.errors import DataError, SettingsError
 from redoxfront.units import SECONDS_PER_DAY, SECONDS_PER_HOUR

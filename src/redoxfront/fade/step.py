@@ -27,13 +27,44 @@ import pandas as pd
 from redoxfront import columns
 from redoxfront.campaign import Campaign, bounded, choice, section_from_mapping
 from redoxfront.columns import (
-    CAPACITY_HALF_LIFE, CELL_TYPE, CI_METHOD, CYCLE, DATA_KIND, FADE_MODEL, FADE_PER_CYCLE,
-    FADE_PER_DAY, K_FADE, K_FIRST, K_SECOND, MEAN_SOC, N_POINTS_READ, N_POINTS_USED,
-    RATE_TABLE_COLUMNS, SIGNAL, SOURCE_FILE, STATUS, TIME_H, TIME_TO_80, USED,
+    CAPACITY_HALF_LIFE,
+    CELL_TYPE,
+    CI_METHOD,
+    CYCLE,
+    DATA_KIND,
+    FADE_MODEL,
+    FADE_PER_CYCLE,
+    FADE_PER_DAY,
+    K_FADE,
+    K_FIRST,
+    K_SECOND,
+    MEAN_SOC,
+    N_POINTS_READ,
+    N_POINTS_USED,
+    RATE_TABLE_COLUMNS,
+    SIGNAL,
+    SOURCE_FILE,
+    STATUS,
+    TIME_H,
+    TIME_TO_80,
+    USED,
 )
-from redoxfront.fade.files import CAPACITY_UNITS_MAH, ROLES, TIME_UNITS_H, SeriesData, load_series
 from redoxfront.errors import DataError, RedoxfrontError, SettingsError
-from redoxfront.fade.rate_laws import HOURS_PER_DAY, MODELS, FadeModel, ModelChoice, choose_model
+from redoxfront.fade.files import (
+    CAPACITY_UNITS_MAH,
+    ROLES,
+    TIME_UNITS_H,
+    SeriesData,
+    load_series,
+)
+from redoxfront.fade.rate_laws import (
+    HOURS_PER_DAY,
+    MODELS,
+    FadeModel,
+    ModelChoice,
+    choose_model,
+)
+from redoxfront.outputs import write_csv, write_text
 
 LOW, HIGH = columns.CI_LOW_SUFFIX, columns.CI_HIGH_SUFFIX
 """Suffixes of the 95 % confidence-interval columns of the rate table."""
@@ -248,11 +279,11 @@ def fit_fade_folder(paths: str | Path | Iterable[str | Path], settings: FadeSett
             plot_fade_fit(did, res.series.table, res.t0_h, res.series.signal_label, res.choice,
                           res.chosen_fit, res.row, out / "figures" / f"fade_{name}.{s.figure_format}")
     rates = pd.DataFrame(rows).reindex(columns=list(RATE_TABLE_COLUMNS))
-    rates.to_csv(out / "rates.csv", index=False)
+    write_csv(rates, out / "rates.csv")
     if model_tabs:
-        pd.concat(model_tabs, ignore_index=True).to_csv(out / "fade_models.csv", index=False)
-        pd.concat(cycle_tabs, ignore_index=True).to_csv(out / "fade_cycles.csv", index=False)
-    (out / "fade_report.md").write_text("\n".join(report) + "\n", encoding="utf-8")
+        write_csv(pd.concat(model_tabs, ignore_index=True), out / "fade_models.csv")
+        write_csv(pd.concat(cycle_tabs, ignore_index=True), out / "fade_cycles.csv")
+    write_text(out / "fade_report.md", "\n".join(report) + "\n")
     return rates
 
 

@@ -16,7 +16,15 @@ import numpy as np
 import pandas as pd
 
 from redoxfront import columns as col
-from redoxfront.figure_style import ACCENT, CMAP, INK, MUTED, plt, save_figure, style_axes
+from redoxfront.figure_style import (
+    ACCENT,
+    CMAP,
+    INK,
+    MUTED,
+    plt,
+    save_figure,
+    style_axes,
+)
 from redoxfront.ranking.objectives import OBJECTIVES
 from redoxfront.ranking.pareto import first_front_mask
 

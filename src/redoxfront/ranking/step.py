@@ -19,8 +19,14 @@ import pandas as pd
 from redoxfront import columns as col
 from redoxfront.campaign import bounded
 from redoxfront.errors import DataError, SettingsError
+from redoxfront.outputs import write_csv, write_json
 from redoxfront.ranking.objectives import OBJECTIVES
-from redoxfront.ranking.pareto import crowding_distance, hypervolume, knee_point, non_dominated_ranks
+from redoxfront.ranking.pareto import (
+    crowding_distance,
+    hypervolume,
+    knee_point,
+    non_dominated_ranks,
+)
 from redoxfront.ranking.uncertainty import (
     Uncertain,
     front_probability,
@@ -185,11 +191,10 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
     """Rank a campaign's candidates: reads results/predictions.csv, writes
     results/ranking.csv, results/picks.csv, results/ranking_summary.json and the figures
     under results/figures/; returns the ranked table."""
-    import json
 
     from redoxfront.campaign import section_from_mapping
-    from redoxfront.ranking.cell_metrics import CellSettings, cell_metrics, truthy
     from redoxfront.errors import InputError
+    from redoxfront.ranking.cell_metrics import CellSettings, cell_metrics, truthy
 
     cell_settings = section_from_mapping(CellSettings, campaign.section("cell"), "cell")
     settings = ranking_settings(campaign)
@@ -236,8 +241,8 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
     result = rank_table(metrics, settings, progress=progress)
     out_dir = campaign.results_dir
     out_dir.mkdir(parents=True, exist_ok=True)
-    result.table.to_csv(out_dir / "ranking.csv", index=False)
-    result.picks.to_csv(out_dir / "picks.csv", index=False)
+    write_csv(result.table, out_dir / "ranking.csv")
+    write_csv(result.picks, out_dir / "picks.csv")
     basis = result.table[col.POTENTIAL_BASIS].value_counts().to_dict()
     summary = {
         "objectives": list(result.objectives),
@@ -251,7 +256,7 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
         "ranking": {**dataclasses.asdict(settings), "objectives": list(settings.objectives)},
         "reference": campaign.compute.reference,
     }
-    (out_dir / "ranking_summary.json").write_text(json.dumps(summary, indent=2), encoding="utf-8")
+    write_json(out_dir / "ranking_summary.json", summary)
     from redoxfront.ranking.figures import plot_front, plot_pairwise
 
     fig_dir = out_dir / "figures"

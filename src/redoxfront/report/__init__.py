@@ -12,6 +12,7 @@ import datetime as _dt
 import html
 import json
 import math
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Iterable
 
@@ -19,9 +20,8 @@ import pandas as pd
 
 from redoxfront import __version__
 from redoxfront import columns as C
-from dataclasses import dataclass
-
 from redoxfront.campaign import Campaign, section_from_mapping
+from redoxfront.outputs import write_text
 from redoxfront.report.safety import SAFETY_NOTES
 
 
@@ -256,5 +256,5 @@ def write_report(campaign: Campaign) -> Path:
     """Write ``results/report.html`` and return its path."""
     out = campaign.results_dir / "report.html"
     out.parent.mkdir(parents=True, exist_ok=True)
-    out.write_text(render_report(campaign), encoding="utf-8")
+    write_text(out, render_report(campaign))
     return out

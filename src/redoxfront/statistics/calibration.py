@@ -10,10 +10,7 @@ measured values are converted with :func:`redoxfront.units.convert_potential`.
 
 from __future__ import annotations
 
-import json
 import math
-import os
-import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -24,6 +21,7 @@ import pandas as pd
 from redoxfront import columns
 from redoxfront.campaign import Campaign, bounded, section_from_mapping
 from redoxfront.errors import DataError, InputError
+from redoxfront.outputs import write_csv, write_json
 from redoxfront.statistics.regression import OLSModel
 from redoxfront.units import convert_potential, reference_key
 
@@ -252,13 +250,6 @@ def calibrate_table(
     return t, CalibrationReport(ref, tuple(lines), int(train.sum()), tuple(notes))
 
 
-def _write_csv_atomic(df: pd.DataFrame, path: Path) -> None:
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=path.name, suffix=".tmp")
-    os.close(fd)
-    df.to_csv(tmp, index=False)
-    os.replace(tmp, path)
-
-
 def calibrate_campaign(campaign: Campaign) -> pd.DataFrame:
     """Calibrate ``results/descriptors.csv`` in place; write ``results/calibration.json``
     and ``results/figures/calibration_parity.png``. Returns the updated table."""
@@ -272,10 +263,10 @@ def calibrate_campaign(campaign: Campaign) -> pd.DataFrame:
     if campaign.inputs.measured_potentials:
         measured, notes = read_measured_potentials(campaign.path(campaign.inputs.measured_potentials), ref)
     out, report = calibrate_table(table, measured, ref, settings)
-    _write_csv_atomic(out, path)
+    write_csv(out, path)
     d = report.to_dict()
     d["notes"] = notes + d["notes"]
-    (campaign.results_dir / "calibration.json").write_text(json.dumps(d, indent=2), encoding="utf-8")
+    write_json(campaign.results_dir / "calibration.json", d)
     out.attrs["calibration"] = d
     if report.lines:
         from redoxfront.statistics.figures import calibration_parity

@@ -12,7 +12,15 @@ from typing import Sequence
 
 import numpy as np
 
-from redoxfront.figure_style import ACCENT, INK, LEGEND_SIZE, SERIES, plt, save_figure, style_axes
+from redoxfront.figure_style import (
+    ACCENT,
+    INK,
+    LEGEND_SIZE,
+    SERIES,
+    plt,
+    save_figure,
+    style_axes,
+)
 
 
 def _save(fig: "plt.Figure", path: str | Path) -> Path:

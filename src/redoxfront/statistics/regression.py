@@ -35,6 +35,7 @@ import pandas as pd
 from scipy import linalg, stats
 
 from redoxfront.errors import DataError
+from redoxfront.outputs import write_json
 from redoxfront.units import STANDARD_TEMPERATURE_K, rt_ln10_kcal_per_mol
 
 INTERCEPT = "intercept"
@@ -440,7 +441,7 @@ class OLSModel:
             d["context"] = extra
         p = Path(path)
         p.parent.mkdir(parents=True, exist_ok=True)
-        p.write_text(json.dumps(d, indent=2, allow_nan=True), encoding="utf-8")
+        write_json(p, d)
         return p
 
     @classmethod

@@ -21,6 +21,7 @@ import pandas as pd
 from redoxfront import columns
 from redoxfront.campaign import bounded, choice
 from redoxfront.errors import DataError
+from redoxfront.outputs import write_csv
 from redoxfront.statistics.regression import OLSModel
 from redoxfront.units import STANDARD_TEMPERATURE_K
 
@@ -164,10 +165,12 @@ def _read_rates(path: Path, target: str) -> tuple[pd.DataFrame, list[str]]:
 
 
 def _resolve_potential(campaign: Any, table: pd.DataFrame) -> tuple[pd.DataFrame, str, list[str]]:
-    from redoxfront.statistics.calibration import (
-        CalibrationSettings, calibrate_table, read_measured_potentials,
-    )
     from redoxfront.campaign import section_from_mapping as sfm
+    from redoxfront.statistics.calibration import (
+        CalibrationSettings,
+        calibrate_table,
+        read_measured_potentials,
+    )
 
     ref = campaign.compute.reference
     cal = columns.potential_calibrated(ref)
@@ -190,10 +193,10 @@ def fit_campaign(campaign: Any) -> FitReport:
     Reads ``results/descriptors.csv`` and the rates; writes ``results/model.json``,
     ``results/predictions.csv`` and figures under ``results/figures/``.
     """
-    from redoxfront.statistics import figures as model_plots
     from redoxfront.campaign import section_from_mapping as sfm
-    from redoxfront.statistics.training_set import kennard_stone_split
+    from redoxfront.statistics import figures as model_plots
     from redoxfront.statistics.term_search import search_terms
+    from redoxfront.statistics.training_set import kennard_stone_split
 
     st = sfm(ModelSettings, campaign.section("model"), "model")
     target = columns.LOG10_K_FIRST if st.rate_order == 1 else columns.LOG10_K_SECOND
@@ -309,7 +312,7 @@ def fit_campaign(campaign: Any) -> FitReport:
     out_dir = campaign.results_dir
     out_dir.mkdir(parents=True, exist_ok=True)
     pred_path = out_dir / "predictions.csv"
-    pred.to_csv(pred_path, index=False)
+    write_csv(pred, pred_path)
     n_extra = int((pred[columns.DOMAIN] == "extrapolating").sum())
 
     context = {

@@ -20,6 +20,7 @@ from scipy.spatial.distance import cdist
 
 from redoxfront import columns
 from redoxfront.errors import DataError
+from redoxfront.outputs import write_csv
 
 ROW_BLOCK = 2048
 """Rows per distance block (keeps memory O(block x N), not O(N^2))."""
@@ -224,5 +225,5 @@ def choose_training_for_campaign(
     design = design_training_set(table, k, forced_in, forced_out, columns_)
     out = design.to_frame()
     out["forced_in"] = out[columns.ID].isin(set(forced_in))
-    out.to_csv(campaign.results_dir / "training_picks.csv", index=False)
+    write_csv(out, campaign.results_dir / "training_picks.csv")
     return design
