@@ -19,7 +19,7 @@ import pandas as pd
 from redoxfront import columns as col
 from redoxfront.campaign import bounded
 from redoxfront.errors import DataError, SettingsError
-from redoxfront.outputs import write_csv, write_json
+from redoxfront.outputs import read_table, write_csv, write_json
 from redoxfront.ranking.objectives import OBJECTIVES
 from redoxfront.ranking.pareto import (
     crowding_distance,
@@ -206,16 +206,12 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
         src = campaign.results_dir / "descriptors.csv"  # no rate model needed for these objectives
         if not src.exists():
             raise InputError("no descriptor table yet; run the compute step first", source=str(src))
-    try:
-        table = pd.read_csv(src)
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
-        raise InputError(f"cannot read the table: {exc}", source=str(src)) from exc
-    if col.ID not in table.columns:
-        raise InputError(f"no '{col.ID}' column", source=str(src), field=col.ID)
+    step = "fit" if src.name == "predictions.csv" else "compute"
+    table = read_table(src, remedy=f"regenerate it with `redoxfront {step} {campaign.folder}`", required=[col.ID])
     table[col.ID] = table[col.ID].astype(str)
     desc_path = campaign.results_dir / "descriptors.csv"
     if desc_path.exists():  # potentials, role, charge count, molar mass live there
-        desc = pd.read_csv(desc_path)
+        desc = read_table(desc_path, remedy=f"regenerate it with `redoxfront compute {campaign.folder}`")
         if col.ID in desc.columns:
             desc[col.ID] = desc[col.ID].astype(str)
             extra = [c for c in desc.columns if c not in table.columns]
@@ -228,7 +224,7 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
     if campaign.inputs.measured_rates:
         rates_path = campaign.path(campaign.inputs.measured_rates)
         if rates_path.exists():
-            rates = pd.read_csv(rates_path)
+            rates = read_table(rates_path, remedy="fix the file or [inputs] measured_rates")
             if col.ID in rates.columns:
                 flag |= table[col.ID].isin(set(rates[col.ID].astype(str)))
     # read_csv and merge leave one block per column; consolidate once before adding columns

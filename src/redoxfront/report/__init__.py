@@ -10,7 +10,6 @@ from __future__ import annotations
 import base64
 import datetime as _dt
 import html
-import json
 import math
 from dataclasses import dataclass
 from pathlib import Path
@@ -21,7 +20,7 @@ import pandas as pd
 from redoxfront import __version__
 from redoxfront import columns as C
 from redoxfront.campaign import Campaign, section_from_mapping
-from redoxfront.outputs import write_text
+from redoxfront.outputs import read_json_file, read_table, regenerate_hint, write_text
 from redoxfront.report.safety import SAFETY_NOTES
 
 
@@ -98,11 +97,11 @@ def _figure(path: Path, alt: str) -> str:
 
 
 def _read_csv(path: Path) -> pd.DataFrame | None:
-    return pd.read_csv(path) if path.exists() else None
+    return read_table(path, remedy=regenerate_hint(path)) if path.exists() else None
 
 
 def _read_json(path: Path) -> dict[str, Any] | None:
-    return json.loads(path.read_text()) if path.exists() else None
+    return read_json_file(path, remedy=regenerate_hint(path)) if path.exists() else None
 
 
 def _picks_section(res: Path, ref: str) -> str:

@@ -21,7 +21,7 @@ import pandas as pd
 from redoxfront import columns
 from redoxfront.campaign import Campaign, bounded, section_from_mapping
 from redoxfront.errors import DataError, InputError
-from redoxfront.outputs import write_csv, write_json
+from redoxfront.outputs import read_table, write_csv, write_json
 from redoxfront.statistics.regression import OLSModel
 from redoxfront.units import convert_potential, reference_key
 
@@ -126,7 +126,7 @@ def read_measured_potentials(path: Path, reference: str) -> tuple[pd.DataFrame, 
     """
     if not path.exists():
         raise InputError("file not found; check [inputs] measured_potentials", source=str(path))
-    df = pd.read_csv(path)
+    df = read_table(path, remedy="fix the file or [inputs] measured_potentials")
     df.columns = [str(c).strip().lower() for c in df.columns]
     missing = [c for c in MEASURED_COLUMNS if c not in df.columns]
     if missing:
@@ -256,9 +256,8 @@ def calibrate_campaign(campaign: Campaign) -> pd.DataFrame:
     settings = section_from_mapping(CalibrationSettings, campaign.section("calibration"), "calibration")
     ref = reference_key(campaign.compute.reference)
     path = campaign.results_dir / "descriptors.csv"
-    if not path.exists():
-        raise DataError(f"no descriptor table at {path}; run the compute step first")
-    table = pd.read_csv(path)
+    table = read_table(path, remedy=f"regenerate it with `redoxfront compute {campaign.folder}`",
+                       required=[columns.ID])
     measured, notes = (None, [])
     if campaign.inputs.measured_potentials:
         measured, notes = read_measured_potentials(campaign.path(campaign.inputs.measured_potentials), ref)

@@ -35,7 +35,7 @@ import pandas as pd
 from scipy import linalg, stats
 
 from redoxfront.errors import DataError
-from redoxfront.outputs import write_json
+from redoxfront.outputs import read_json_file, regenerate_hint, write_json
 from redoxfront.units import STANDARD_TEMPERATURE_K, rt_ln10_kcal_per_mol
 
 INTERCEPT = "intercept"
@@ -469,10 +469,5 @@ class OLSModel:
 def load_model(path: str | Path) -> OLSModel:
     """Load a model saved with :meth:`OLSModel.save` (JSON)."""
     p = Path(path)
-    if not p.exists():
-        raise DataError(f"no model file at {p}; run the fit command first")
-    try:
-        d = json.loads(p.read_text(encoding="utf-8"))
-    except json.JSONDecodeError as exc:
-        raise DataError(f"{p}: not valid JSON: {exc}") from exc
+    d = read_json_file(p, remedy=regenerate_hint(p))
     return OLSModel.from_dict(d)

@@ -21,7 +21,7 @@ import pandas as pd
 from redoxfront import columns
 from redoxfront.campaign import bounded, choice
 from redoxfront.errors import DataError
-from redoxfront.outputs import write_csv
+from redoxfront.outputs import read_table, write_csv
 from redoxfront.statistics.regression import OLSModel
 from redoxfront.units import STANDARD_TEMPERATURE_K
 
@@ -130,7 +130,7 @@ def _read_rates(path: Path, target: str) -> tuple[pd.DataFrame, list[str]]:
             f"no rates file at {path}; set [inputs] measured_rates or run the fade step "
             "(it writes results/rates.csv)"
         )
-    df = pd.read_csv(path)
+    df = read_table(path, remedy="regenerate it with `redoxfront fade CAMPAIGN` or fix [inputs] measured_rates")
     if columns.ID not in df.columns or target not in df.columns:
         raise InputError(
             f"need columns '{columns.ID}' and '{target}' (found {', '.join(map(str, df.columns))}); "
@@ -202,9 +202,8 @@ def fit_campaign(campaign: Any) -> FitReport:
     target = columns.LOG10_K_FIRST if st.rate_order == 1 else columns.LOG10_K_SECOND
     pred_col = columns.LOG10_K_PRED_FIRST if st.rate_order == 1 else columns.LOG10_K_PRED_SECOND
     desc_path = campaign.results_dir / "descriptors.csv"
-    if not desc_path.exists():
-        raise DataError(f"no descriptor table at {desc_path}; run the compute step first")
-    table = pd.read_csv(desc_path)
+    table = read_table(desc_path, remedy=f"regenerate it with `redoxfront compute {campaign.folder}`",
+                       required=[columns.ID])
     table[columns.ID] = table[columns.ID].astype(str)
     table, pot_col, notes = _resolve_potential(campaign, table)
     rates_rel = st.rates or campaign.inputs.measured_rates

@@ -20,7 +20,7 @@ from scipy.spatial.distance import cdist
 
 from redoxfront import columns
 from redoxfront.errors import DataError
-from redoxfront.outputs import write_csv
+from redoxfront.outputs import read_table, write_csv
 
 ROW_BLOCK = 2048
 """Rows per distance block (keeps memory O(block x N), not O(N^2))."""
@@ -219,9 +219,8 @@ def choose_training_for_campaign(
 
     campaign = load_campaign(campaign_path)
     path = campaign.results_dir / "descriptors.csv"
-    if not path.exists():
-        raise DataError(f"no descriptor table at {path}; run the compute step first")
-    table = pd.read_csv(path)
+    table = read_table(path, remedy=f"regenerate it with `redoxfront compute {campaign.folder}`",
+                       required=[columns.ID])
     design = design_training_set(table, k, forced_in, forced_out, columns_)
     out = design.to_frame()
     out["forced_in"] = out[columns.ID].isin(set(forced_in))
