@@ -469,5 +469,7 @@ class OLSModel:
 def load_model(path: str | Path) -> OLSModel:
     """Load a model saved with :meth:`OLSModel.save` (JSON)."""
     p = Path(path)
+    if not p.exists():
+        raise DataError(f"no model file at {p}; run the fit command first")
     d = read_json_file(p, remedy=regenerate_hint(p))
     return OLSModel.from_dict(d)
