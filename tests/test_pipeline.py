@@ -55,6 +55,9 @@ def test_run_every_step_and_report(tmp_path):
     run_campaign(folder, progress=False, echo=lines.append)
     steps = [ln.split()[0] for ln in lines if not ln.startswith(" ")]
     assert steps == ["compute", "fade", "calibrate", "fit", "rank", "report"]
+    # issue 11: run says which sources each step used (6 measured potentials, 1 calibrated)
+    assert any(ln.strip() == "potentials: measured 6, calibrated 1, uncalibrated 0" for ln in lines)
+    assert any(ln.strip() == "rates that trained the model: measured 6, fitted 0" for ln in lines)
     res = folder / "results"
     cal = json.loads((res / "calibration.json").read_text())
     assert cal["lines"][0]["slope"] == pytest.approx(0.80, abs=1e-6)  # exact rule recovered

@@ -119,3 +119,39 @@ def test_cli_fit_prints_summary_and_errors(tmp_path):
     bad = make_campaign(tmp_path / "bad", n=2)
     r = CliRunner().invoke(main, ["fit", str(bad)])
     assert r.exit_code == 2 and "error: 2 training rows" in r.output and "Traceback" not in r.output
+
+
+def test_fitted_and_measured_rates_both_train_the_model_measured_wins(tmp_path):
+    """Issue 11: rates fitted from cycling files train the model next to the measured file;
+    every rate says where it came from; the measured value wins for a candidate with both."""
+    folder = make_campaign(tmp_path, model_toml="[model]\nn_permutations = 100\n", n=12)
+    measured = pd.read_csv(folder / "inputs" / "rates.csv")
+    # invented fitted rates (as the fade step writes them): two new candidates, one overlap
+    # that agrees (dmb-00) and one that disagrees with its measured value (dmb-01)
+    m0, m1 = measured.loc[0, columns.LOG10_K_FIRST], measured.loc[1, columns.LOG10_K_FIRST]
+    fitted = pd.DataFrame({
+        "id": ["dmb-12", "dmb-13", "dmb-00", "dmb-01"], "status": "ok",
+        columns.LOG10_K_FIRST: [-2.0, -2.5, m0 + 0.01, m1 + 1.0],
+        columns.LOG10_K_FIRST + columns.CI_LOW_SUFFIX: [-2.1, -2.6, m0 - 0.05, m1 + 0.9],
+        columns.LOG10_K_FIRST + columns.CI_HIGH_SUFFIX: [-1.9, -2.4, m0 + 0.05, m1 + 1.1],
+        columns.SOURCE_FILE: ["inputs/cycling/dmb-12.csv", "inputs/cycling/dmb-13.tsv",
+                              "inputs/cycling/dmb-00.csv", "inputs/cycling/dmb-01.csv"],
+    })
+    fitted.to_csv(folder / "results" / "rates.csv", index=False)
+    rep = fit_campaign(load_campaign(folder))
+    # 12 measured + 2 fitted-only candidates train the model (common practice, no source)
+    assert rep.n_train == 14
+    assert rep.rate_sources == {"measured": 12, "fitted": 2}
+    pred = pd.read_csv(rep.predictions_path, dtype={"id": str}).set_index("id")
+    assert pred.loc["dmb-12", columns.RATE_SOURCE] == "fitted"
+    assert pred.loc["dmb-12", columns.RATE_SOURCE_DETAIL] == "fitted from dmb-12.csv (95 % CI -2.100 to -1.900)"
+    assert pred.loc["dmb-00", columns.RATE_SOURCE] == "measured"
+    assert pred.loc["dmb-00", columns.RATE_SOURCE_DETAIL] == "measured: rates.csv row 2"
+    assert pred.loc["dmb-01", columns.LOG10_K_FIRST] == pytest.approx(m1)
+    assert "outside the 95 % interval" in pred.loc["dmb-01", columns.RATE_NOTE]
+    assert "outside the 95 % interval" not in str(pred.loc["dmb-00", columns.RATE_NOTE])
+    assert any("disagree" in n and "dmb-01" in n for n in rep.notes)
+    assert "rates: measured 12, fitted 2" in rep.text()
+    import json
+    model = json.loads(rep.model_path.read_text())
+    assert model["context"]["rate_sources"]["counts"] == {"measured": 12, "fitted": 2}

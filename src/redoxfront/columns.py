@@ -113,6 +113,13 @@ CALIBRATION_GROUP = "calibration_group"
 """Which calibration line a row used: 'all' (pooled) or its compound class."""
 STANDARDISED_RESIDUAL = "standardised_residual"
 """Training rows: residual / (s sqrt(1 - h)), dimensionless (internally studentised)."""
+RATE_SOURCE = "rate_source"
+"""Where a candidate's decomposition rate came from: 'measured' (the measured-rates file)
+or 'fitted' (a cycling or decay file, by the fade step); empty when it has none."""
+RATE_SOURCE_DETAIL = "rate_source_detail"
+"""The file and row of a measured rate, or the cycling file and 95 % CI of a fitted one."""
+RATE_NOTE = "rate_note"
+"""A candidate with both a measured and a fitted rate: which one was used and whether they disagree."""
 MODEL_SET = "model_set"
 """'train', 'test' or '' (candidate without a measured rate)."""
 

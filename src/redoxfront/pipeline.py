@@ -9,9 +9,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable
+from typing import TYPE_CHECKING, Callable
 
 from redoxfront.campaign import Campaign, load_campaign
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 
 @dataclass
@@ -22,6 +25,25 @@ class RunSummary:
 
     def add(self, step: str, text: str) -> None:
         self.lines.append(f"{step:10s} {text}")
+
+
+def potential_counts(table: "pd.DataFrame", reference: str) -> dict[str, int]:
+    """Candidates with a measured potential, a calibrated one (not measured) and only an
+    uncalibrated one (computed successfully, neither measured nor calibrated)."""
+    import pandas as pd
+
+    from redoxfront import columns
+    from redoxfront.units import reference_key
+
+    ref = reference_key(reference)
+
+    def num(name: str) -> "pd.Series":
+        return pd.to_numeric(table[name], errors="coerce") if name in table.columns else pd.Series(float("nan"), index=table.index)
+
+    measured = num(columns.potential_measured(ref)).notna()
+    calibrated = num(columns.potential_calibrated(ref)).notna() & ~measured
+    raw = num(columns.potential_uncalibrated(ref)).notna() & ~measured & ~calibrated
+    return {"measured": int(measured.sum()), "calibrated": int(calibrated.sum()), "uncalibrated": int(raw.sum())}
 
 
 def run_campaign(
@@ -71,6 +93,7 @@ def run_campaign(
     cal = table.attrs.get("calibration", {})
     note("calibrate", f"calibrated against {cal['n_measured_used']} measured potentials (results/calibration.json)"
          if cal.get("lines") else "skipped: no usable measured potentials; potentials stay uncalibrated")
+    note("", "potentials: " + ", ".join(f"{k} {v}" for k, v in potential_counts(table, camp.compute.reference).items()))
 
     rates_given = camp.inputs.measured_rates or (camp.results_dir / "rates.csv").exists()
     if rates_given:
@@ -78,6 +101,7 @@ def run_campaign(
         stats = fit.statistics
         note("fit", f"model on {', '.join(fit.terms)}: R2 {stats.get('r2') or float('nan'):.3f}, "
                     f"Q2(LOO) {stats.get('q2_loo') or float('nan'):.3f} (results/model.json, results/predictions.csv)")
+        note("", "rates that trained the model: " + ", ".join(f"{k} {v}" for k, v in fit.rate_sources.items()))
     else:
         note("fit", "skipped: no measured rates and no fitted fade rates")
     needs_model = "half_life" in ranking_objectives(camp)

@@ -13,7 +13,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from dataclasses import field as dc_field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
@@ -24,6 +24,9 @@ from redoxfront.errors import DataError
 from redoxfront.outputs import read_table, write_csv
 from redoxfront.statistics.regression import OLSModel
 from redoxfront.units import STANDARD_TEMPERATURE_K
+
+if TYPE_CHECKING:
+    from redoxfront.statistics.rate_sources import RateSources
 
 STERIC_PREFIXES: tuple[str, ...] = (
     "sterimol_b1", "sterimol_b5", "sterimol_l", "sterimol", "buried_volume_percent",
@@ -48,7 +51,9 @@ class ModelSettings:
         'marked' (the ``set`` column), or 'kennard-stone' (test_fraction held out).
     temperature_k : temperature for ddG‡ in kcal/mol.
     rate_order : 1 (k in 1/h) or 2 (k in L/(mol h)).
-    rates : rates file; default [inputs] measured_rates, else results/rates.csv.
+    rates : measured-rates file; default [inputs] measured_rates. Rates fitted by the fade
+        step (results/rates.csv) train the model as well; a candidate with both uses the
+        measured value (see :mod:`redoxfront.statistics.rate_sources`).
     """
 
     terms: tuple[str, ...] = ()
@@ -84,11 +89,15 @@ class FitReport:
     predictions_path: Path
     figures: tuple[Path, ...]
     notes: tuple[str, ...]
+    rate_sources: dict[str, int] = dc_field(default_factory=dict)
+    """Candidates whose rate trained or tested the model, per source ('measured', 'fitted')."""
 
     def text(self) -> str:
         """A short plain-text summary for the terminal."""
         s = self.statistics
         lines = [f"{self.target} = fitted on {self.n_train} rows, terms: {', '.join(self.terms)}"]
+        if self.rate_sources:
+            lines.append("rates: " + ", ".join(f"{k} {v}" for k, v in self.rate_sources.items()))
         lines.append(self.coefficients.to_string(index=False, float_format=lambda v: f"{v:.4g}"))
         lines.append(
             f"R2 {s['r2']:.3f}  adj R2 {s['adj_r2']:.3f}  RMSE {s['rmse']:.3f}  "
@@ -122,46 +131,17 @@ def _non_descriptor(col: str) -> bool:
     return col in fixed or col.startswith(("potential", "log10_k", "calibration"))
 
 
-def _read_rates(path: Path, target: str) -> tuple[pd.DataFrame, list[str]]:
-    from redoxfront.errors import InputError
+def _rate_sources(campaign: Any, st: "ModelSettings", target: str) -> "RateSources":
+    """The rates that train the model: measured file and fitted rates (results/rates.csv) both,
+    the measured value winning for a candidate with both (see :mod:`rate_sources`)."""
+    from redoxfront.statistics.rate_sources import collect_rates
 
-    if not path.exists():
-        raise DataError(
-            f"no rates file at {path}; set [inputs] measured_rates or run the fade step "
-            "(it writes results/rates.csv)"
-        )
-    df = read_table(path, remedy="regenerate it with `redoxfront fade CAMPAIGN` or fix [inputs] measured_rates")
-    if columns.ID not in df.columns or target not in df.columns:
-        raise InputError(
-            f"need columns '{columns.ID}' and '{target}' (found {', '.join(map(str, df.columns))}); "
-            "check [model] rate_order", source=str(path),
-        )
-    df[columns.ID] = df[columns.ID].astype(str)
-    notes: list[str] = []
-    df[target] = pd.to_numeric(df[target], errors="coerce")
-    if columns.STATUS in df.columns:
-        failed = df[columns.STATUS].astype(str).ne("ok")
-        if failed.any():
-            notes.append(f"rates with a failed fit, left out: {', '.join(df.loc[failed, columns.ID][:20])}")
-        df = df[~failed].copy()
-    empty = df.loc[df[target].isna(), columns.ID].tolist()
-    if empty:
-        notes.append(f"rates without a value, left out: {', '.join(empty[:20])}")
-    df = df[df[target].notna()].copy()
-    if "set" in df.columns:
-        df["set"] = df["set"].fillna("train").astype(str).str.strip().str.lower().replace("", "train")
-        bad = df.loc[~df["set"].isin(["train", "test"])]
-        if len(bad):
-            r = bad.iloc[0]
-            raise InputError(
-                f"'set' must be train or test, got {r['set']!r}", row=r[columns.ID], field="set",
-                source=str(path),
-            )
-    if df[columns.ID].duplicated().any():
-        notes.append("some ids have more than one rate; their log10 k values were averaged")
-        agg = {target: "mean", **({"set": "first"} if "set" in df.columns else {})}
-        df = df.groupby(columns.ID, as_index=False, sort=False).agg(agg)
-    return df, notes
+    fitted = campaign.results_dir / "rates.csv"
+    measured_rel = st.rates or campaign.inputs.measured_rates
+    measured = campaign.path(measured_rel) if measured_rel else None
+    if measured is not None and measured.resolve() == fitted.resolve():
+        measured = None
+    return collect_rates(measured, fitted, target)
 
 
 def _resolve_potential(campaign: Any, table: pd.DataFrame) -> tuple[pd.DataFrame, str, list[str]]:
@@ -206,19 +186,20 @@ def fit_campaign(campaign: Any) -> FitReport:
                        required=[columns.ID])
     table[columns.ID] = table[columns.ID].astype(str)
     table, pot_col, notes = _resolve_potential(campaign, table)
-    rates_rel = st.rates or campaign.inputs.measured_rates
-    rates_path = campaign.path(rates_rel) if rates_rel else campaign.results_dir / "rates.csv"
-    rates, rate_notes = _read_rates(rates_path, target)
-    notes += rate_notes
+    sources = _rate_sources(campaign, st, target)
+    rates = sources.table
+    notes += list(sources.notes)
     ok = table[columns.STATUS].astype(str).eq("ok") if columns.STATUS in table.columns else pd.Series(True, index=table.index)
     ok_ids = set(table.loc[ok, columns.ID])
     dropped = [i for i in rates[columns.ID] if i not in ok_ids]
     if dropped:
         notes.append(f"rated id(s) missing from the descriptor table or failed there, left out: {', '.join(dropped[:20])}")
     rates = rates[rates[columns.ID].isin(ok_ids)]
-    data = table.drop(columns=[c for c in (target, "set") if c in table.columns]).merge(
+    rate_cols = [c for c in rates.columns if c != columns.ID]
+    data = table.drop(columns=[c for c in rate_cols if c in table.columns]).merge(
         rates, on=columns.ID, how="inner"
     )
+    trained_counts = {src: int((data[columns.RATE_SOURCE] == src).sum()) for src in ("measured", "fitted")}
     data = data.set_index(columns.ID)
 
     # ---- terms
@@ -300,7 +281,10 @@ def fit_campaign(campaign: Any) -> FitReport:
     membership[membership.index.isin(train.index)] = "train"
     membership[membership.index.isin(test.index)] = "test"
     pred[columns.MODEL_SET] = membership.to_numpy()
-    pred[target] = pred[columns.ID].map(data[target])
+    for c in rate_cols:
+        if c != "set":
+            pred[c] = pred[columns.ID].map(data[c])
+    pred[columns.RATE_SOURCE] = pred[columns.RATE_SOURCE].fillna("")
     pred[columns.STANDARDISED_RESIDUAL] = pred[columns.ID].map(
         pd.Series(model.standardised_resid_, index=model.ids_)
     )
@@ -321,6 +305,9 @@ def fit_campaign(campaign: Any) -> FitReport:
         "rate_order": st.rate_order,
         "potential_column": pot_col,
         "split": split,
+        "rate_sources": {"files": list(sources.files), "counts": trained_counts,
+                         "rule": "a candidate with both a measured and a fitted rate uses the measured value; "
+                                 "a measured value outside the fit's 95 % interval is reported"},
         "n_test": int(len(test)),
         "external_validation": external,
         "search": search_summary,
@@ -356,6 +343,7 @@ def fit_campaign(campaign: Any) -> FitReport:
         statistics=model.statistics(), external=external, search=search_summary,
         n_train=model.n_, n_test=int(len(test)), n_extrapolating=n_extra,
         model_path=model_path, predictions_path=pred_path, figures=tuple(figs), notes=tuple(notes),
+        rate_sources=trained_counts,
     )
 
 
