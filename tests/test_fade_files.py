@@ -220,3 +220,53 @@ def test_flag_spikes_hampel() -> None:
     y[10] = 7.0
     flags = flag_spikes(y, 6.0)
     assert flags.tolist() == [i == 10 for i in range(21)]
+
+
+def test_header_unit_wins_and_contradicting_setting_is_an_error(tmp_path) -> None:
+    """Issue 11: a file headed 'Test Time (s)' read with time_unit = 'h' was 3600x off."""
+    df, _caps = point_level_frame(n_cycles=4)
+    path = tmp_path / "cell.csv"
+    df.to_csv(path, index=False)
+    with pytest.raises(InputError) as err:
+        load_series(path, time_unit="h")
+    msg = str(err.value)
+    assert "cell.csv" in msg and "'Test Time (s)'" in msg and "[fade] time_unit = 'h'" in msg
+    with pytest.raises(InputError, match=r"\[fade\] capacity_unit = 'ah'"):
+        load_series(path, capacity_unit="ah")
+    # the same setting as the header is no contradiction; 3600 s = 1 h (definition)
+    same = load_series(path, time_unit="s", capacity_unit="mah")
+    assert same.table[TIME_H].iloc[0] == pytest.approx(7800 / 3600)
+    # a header without a unit takes the setting
+    path2 = tmp_path / "nounit.csv"
+    pd.DataFrame({"cycle": [1, 2, 3], "time": [1.0, 2.0, 3.0], "discharge capacity": [5.0, 4.9, 4.8]}).to_csv(
+        path2, index=False)
+    s = load_series(path2, time_unit="h", capacity_unit="ah")
+    np.testing.assert_allclose(s.table[TIME_H], [1.0, 2.0, 3.0])
+    # 1 Ah = 1000 mAh (definition)
+    np.testing.assert_allclose(s.table[DISCHARGE_CAPACITY], [5000.0, 4900.0, 4800.0])
+    assert "([fade] time_unit setting)" in "\n".join(s.report)
+
+
+def test_per_cycle_restart_of_cycle_and_time_keeps_one_cycle_duration(tmp_path) -> None:
+    """Per-cycle rows hold the end time of each cycle: after a restart where both the counter
+    and the time start again, cycle 6 ends one cycle (1.5 h) after cycle 5, not at the same time."""
+    t = np.arange(1, 11) * 1.5
+    cyc = np.arange(1, 11)
+    t[5:] -= t[4]  # the restarted test: time counts again from 0 (1.5, 3.0, ...)
+    cyc[5:] -= 5
+    path = tmp_path / "per_cycle.tsv"
+    lines = ["cycle\ttime/h\tQ discharge/mAh"]
+    for i, (c, tt) in enumerate(zip(cyc, t)):
+        lines.append(f"{c}\t{tt}\t{10 - 0.1 * i:.2f}")
+        if i == 2:
+            lines.append("")  # a blank line
+            lines.append("\t\t")  # a row of empty cells
+    lines.append("11\t16.5\tn/a")  # unparseable capacity
+    path.write_text("\n".join(lines) + "\n")
+    s = load_series(path)
+    # common practice, no source: continuous time on the cycler's clock
+    np.testing.assert_allclose(s.table[TIME_H].to_numpy()[:10], np.arange(1, 11) * 1.5)
+    text = "\n".join(s.report)
+    assert "2 blank rows skipped" in text
+    assert "1 values of 'Q discharge/mAh' are not numbers (e.g. 'n/a')" in text
+    assert s.table[USED].sum() == 10

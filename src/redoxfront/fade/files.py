@@ -217,9 +217,25 @@ def read_table(path: Path) -> list[pd.DataFrame]:
     from io import StringIO
 
     try:
-        return [pd.read_csv(StringIO(text), sep=sep, decimal=decimal)]
+        return [pd.read_csv(StringIO(text), sep=sep, decimal=decimal, skip_blank_lines=False,
+                            keep_default_na=False, na_values=[""])]
     except (pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
         raise InputError(f"cannot read as a {sep!r}-separated table: {exc}", source=str(path)) from exc
+
+
+def resolve_unit(header_unit: str | None, setting: str | None, header: str, setting_name: str,
+                 source: str) -> str | None:
+    """The unit of a column: the one in its header always wins; the ``[fade]`` setting applies
+    only to headers without a unit. A header unit that contradicts the setting is an error
+    naming the file, the header and the setting (a wrong unit changes a rate by up to 3600x)."""
+    if header_unit is not None and setting is not None and header_unit != setting:
+        raise InputError(
+            f"the header '{header}' says {header_unit} but [fade] {setting_name} = '{setting}'; "
+            f"the header's unit is used for files that state one: remove [fade] {setting_name} "
+            "(it applies only to headers without a unit) or correct the file",
+            field=header, source=source,
+        )
+    return header_unit or setting
 
 
 def _time_hours(col: pd.Series, det: DetectedColumn, time_unit: str | None, source: str,
@@ -230,7 +246,8 @@ def _time_hours(col: pd.Series, det: DetectedColumn, time_unit: str | None, sour
         if stamps.notna().sum() >= max(1, 0.5 * col.notna().sum()):
             report.append(f"time read as date-time stamps from '{det.header}', hours since the first")
             return (stamps - stamps.dropna().iloc[0]).dt.total_seconds() / SECONDS_PER_HOUR
-    unit = time_unit or (_TIME_ALIASES.get(det.unit) if det.unit else None)
+    header_unit = _TIME_ALIASES.get(det.unit) if det.unit else None
+    unit = resolve_unit(header_unit, time_unit, det.header, "time_unit", source)
     if unit is None:
         raise InputError(
             f"the time column '{det.header}' has no unit in its header"
@@ -238,24 +255,34 @@ def _time_hours(col: pd.Series, det: DetectedColumn, time_unit: str | None, sour
             + "; set [fade] time_unit = 's', 'min', 'h' or 'd'",
             field=det.header, source=source,
         )
-    report.append(f"time from '{det.header}' in {unit}" + (" (time_unit setting)" if time_unit else ""))
+    report.append(f"time from '{det.header}' in {unit}"
+                  + (" (from the header)" if header_unit else " ([fade] time_unit setting)"))
     return values * TIME_UNITS_H[unit]
 
 
 def _capacity(df: pd.DataFrame, cols: dict[str, DetectedColumn], capacity_unit: str | None,
-              report: list[str]) -> dict[str, pd.Series]:
+              report: list[str], source: str) -> dict[str, pd.Series]:
     out: dict[str, pd.Series] = {}
     for role in ("charge_capacity", "discharge_capacity", "capacity"):
         if role in cols:
             det = cols[role]
-            unit = capacity_unit or det.unit
+            header_unit = det.unit if det.unit in CAPACITY_UNITS_MAH else None
+            unit = resolve_unit(header_unit, capacity_unit, det.header, "capacity_unit", source)
             factor = CAPACITY_UNITS_MAH.get(unit or "", None)
             if factor is None:
                 factor = 1.0
                 report.append(f"capacity unit of '{det.header}' not recognised "
                               f"({det.unit or 'none'}); values used as given and labelled mAh; "
                               "set [fade] capacity_unit to fix")
-            out[role] = numeric(df[det.header]).abs() * factor
+            else:
+                report.append(f"capacity from '{det.header}' in {unit}"
+                              + (" (from the header)" if header_unit else " ([fade] capacity_unit setting)"))
+            values = numeric(df[det.header])
+            text = df[det.header].notna() & values.isna()
+            if text.any():
+                report.append(f"{int(text.sum())} values of '{det.header}' are not numbers "
+                              f"(e.g. {str(df.loc[text, det.header].iloc[0])!r}); those cycles have no capacity")
+            out[role] = values.abs() * factor
     return out
 
 
@@ -289,7 +316,13 @@ def load_series(
             break
     headers = [str(h) for h in df.columns]
     df.columns = headers
-    report: list[str] = [f"{len(df)} data rows read"]
+    blank = df.isna().all(axis=1) | df.astype(str).apply(lambda c: c.str.strip()).isin(["", "nan"]).all(axis=1)
+    report: list[str] = [f"{int((~blank).sum())} data rows read"]
+    if blank.any():
+        report.append(f"{int(blank.sum())} blank rows skipped (data rows "
+                      + ", ".join(str(i + 2) for i in np.flatnonzero(blank)[:10])
+                      + (" ..." if blank.sum() > 10 else "") + ")")
+        df = df[~blank].copy()
     if not cols:
         cols = detect_columns(headers, column_map, source)
     is_cycling = any(r in cols for r in ("charge_capacity", "discharge_capacity", "capacity"))
@@ -335,10 +368,16 @@ def load_series(
         report.append(f"{int(missing.sum())} rows with a missing or non-numeric cycle or time "
                       "dropped")
         df = df[~missing].copy()
-    if "time" in cols:
-        df["_time_h"] = fix_counter_resets(df["_time_h"], "time", report, 0.0)
     df["_cycle"] = fix_counter_resets(df["_cycle"], "cycle counter", report, 1.0)
-    caps = _capacity(df, cols, capacity_unit, report)
+    per_cycle = not bool(df["_cycle"].duplicated().mean() > 0.3)
+    if "time" in cols:
+        # per-cycle rows hold the time at the end of each cycle: after a restart the first row
+        # ends one cycle later than the last row before it, so the offset adds one cycle
+        # duration (the median spacing of the rows); point-level rows continue where they stopped
+        steps = df["_time_h"].diff()
+        cycle_h = float(steps[steps > 0].median()) if per_cycle and (steps > 0).any() else 0.0
+        df["_time_h"] = fix_counter_resets(df["_time_h"], "time", report, cycle_h)
+    caps = _capacity(df, cols, capacity_unit, report, source)
     cyc = reduce_to_cycles(df["_cycle"], df["_time_h"], caps,
                            df[cols["step"].header] if "step" in cols else None,
                            df[cols["current"].header] if "current" in cols else None,
