@@ -11,6 +11,8 @@ from __future__ import annotations
 import multiprocessing
 import os
 import sys
+import threading
+import time
 import warnings
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from typing import Any, Callable, Iterator, Sequence
@@ -20,9 +22,44 @@ from tqdm.auto import tqdm
 from redoxfront.campaign import THREAD_VARIABLES
 
 
-def _init_worker(threads: int) -> None:
+PARENT_CHECK_S = 0.5
+"""How often a pool worker checks that the process that started it is still alive, s."""
+
+
+def _exit_with_parent(parent_pid: int, kernel_signal: bool) -> None:
+    """Make this worker end when ``parent_pid`` dies, even by kill -9 (which runs no clean-up).
+
+    Linux: the kernel sends SIGKILL to the worker when its parent dies (``prctl``
+    PR_SET_PDEATHSIG, used only when the pool was started from the main thread, since the
+    signal follows the starting thread). Everywhere: a daemon thread checks every
+    :data:`PARENT_CHECK_S` seconds that the parent is still the worker's parent and
+    ends the worker at once when it is not (an orphan is re-parented).
+    """
+    if kernel_signal and sys.platform.startswith("linux"):
+        try:
+            import ctypes
+            import signal
+
+            ctypes.CDLL(None, use_errno=True).prctl(1, int(signal.SIGKILL), 0, 0, 0)  # PR_SET_PDEATHSIG = 1
+        except (OSError, AttributeError):
+            pass
+    if os.getppid() != parent_pid:  # the parent died before the signal was set up
+        os._exit(1)
+
+    def watch() -> None:
+        while True:
+            time.sleep(PARENT_CHECK_S)
+            if os.getppid() != parent_pid:
+                os._exit(1)
+
+    threading.Thread(target=watch, name="parent-watch", daemon=True).start()
+
+
+def _init_worker(threads: int, parent_pid: int | None = None, kernel_signal: bool = False) -> None:
     for var in THREAD_VARIABLES:
         os.environ[var] = str(threads)
+    if parent_pid is not None:
+        _exit_with_parent(parent_pid, kernel_signal)
 
 
 def _start_method(threads_per_worker: int) -> str:
@@ -85,8 +122,9 @@ def map_tasks(
         saved = {v: os.environ.get(v) for v in THREAD_VARIABLES}
         _init_worker(threads_per_worker)  # spawned children inherit these at start
         try:
+            watch = (threads_per_worker, os.getpid(), threading.current_thread() is threading.main_thread())
             with ProcessPoolExecutor(workers, mp_context=ctx, initializer=_init_worker,
-                                     initargs=(threads_per_worker,)) as pool:
+                                     initargs=watch) as pool:
                 futures = [pool.submit(func, item, *args) for item in items]
                 for fut in as_completed(futures):
                     yield fut.result()

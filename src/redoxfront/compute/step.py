@@ -30,6 +30,7 @@ from redoxfront.candidates.structures import (
 )
 from redoxfront.compute.executors import map_tasks
 from redoxfront.compute.geometries import write_geometries
+from redoxfront.compute.lock import campaign_lock
 from redoxfront.compute.store import Store
 from redoxfront.descriptors import descriptors_for_candidate
 from redoxfront.engine.optimizer import optimize_geometry
@@ -457,7 +458,16 @@ def compute_campaign(
 
     Bad rows are written to ``results/input_problems.csv`` with row, field and reason;
     they never stop the batch. ``describe=False``: potentials only, no descriptors.
+    One compute run per campaign at a time: a second one stops with
+    :class:`~redoxfront.compute.lock.CampaignBusyError` naming the process holding it.
     """
+    with campaign_lock(campaign.folder):
+        return _compute_campaign(campaign, candidates_path, out_path, workers, dask_address, progress, describe)
+
+
+def _compute_campaign(campaign: Campaign, candidates_path: str | Path | None, out_path: str | Path | None,
+                      workers: int | None, dask_address: str | None, progress: bool,
+                      describe: bool) -> ComputeReport:
     settings = campaign.compute
     path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates)
     candidates, problems = read_candidates(path, settings)

@@ -234,8 +234,10 @@ def optimize_geometry(
     updated by BFGS. Convergence (Eh, bohr): :func:`is_converged` with the
     :class:`~redoxfront.campaign.OptimizerSettings` thresholds. ``initial``: the
     engine result at the start geometry when it is already known (same state and
-    settings); it is used instead of a first call and is not counted in
-    ``gradient_calls``, which counts the engine calls this optimisation made.
+    settings); it is used instead of a first call. ``gradient_calls`` counts the gradient
+    evaluations the path took, the start point included whoever computed it, so it does not
+    depend on whether the start point was known. Each point's SCC starts from the previous
+    point's wavefunction (``guess``): the path depends only on the start geometry.
     """
     numbers = np.asarray(numbers)
     x = np.asarray(positions_angstrom, dtype=float).ravel() * ANGSTROM_BOHR
@@ -243,11 +245,13 @@ def optimize_geometry(
     hq = np.diag(w)
     trust = settings.trust_radius_bohr
     if initial is None:
-        res = engine.compute(numbers, x.reshape(-1, 3) * BOHR_ANGSTROM, charge, uhf,
+        # at the geometry as given, not its bohr round trip: the same point, to the last bit,
+        # as an ``initial`` result computed there by someone else
+        res = engine.compute(numbers, np.asarray(positions_angstrom, dtype=float), charge, uhf,
                              spin_polarized=spin_polarized)
         calls = 1
     else:
-        res, calls = initial, 0
+        res, calls = initial, 1
     converged = False
     it = 0
     last_change: float | None = None
@@ -270,7 +274,8 @@ def optimize_geometry(
             converged = True
             break
         x_new = x + step
-        new = engine.compute(numbers, x_new.reshape(-1, 3) * BOHR_ANGSTROM, charge, uhf, spin_polarized=spin_polarized)
+        new = engine.compute(numbers, x_new.reshape(-1, 3) * BOHR_ANGSTROM, charge, uhf,
+                             spin_polarized=spin_polarized, guess=res)
         calls += 1
         actual = new.energy_eh - res.energy_eh
         last_change = actual
@@ -315,8 +320,11 @@ def optimize_geometry_lbfgs_baseline(
     seen: dict[bytes, EngineResult] = {}
     state: dict[str, Any] = {"x": None, "e": None}
 
+    last: dict[str, EngineResult | None] = {"r": None}
+
     def fun(xf: np.ndarray):
-        r = engine.compute(numbers, xf.reshape(-1, 3) * BOHR_ANGSTROM, charge, uhf)
+        r = engine.compute(numbers, xf.reshape(-1, 3) * BOHR_ANGSTROM, charge, uhf, guess=last["r"])
+        last["r"] = r
         seen.clear()
         seen[xf.tobytes()] = r
         return r.energy_eh, r.gradient_eh_per_bohr.ravel()

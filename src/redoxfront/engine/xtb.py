@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass, field
-from typing import Protocol
+from typing import Any, Protocol
 
 import numpy as np
 
@@ -35,6 +35,9 @@ class EngineResult:
     occupations: np.ndarray
     dipole_au: np.ndarray
     spin_populations: np.ndarray | None = None
+    restart: Any = field(default=None, repr=False, compare=False)
+    """The engine's converged wavefunction at this point (opaque, in memory only): the start
+    guess of the next point of the same optimisation (``compute(..., guess=this)``)."""
 
     @property
     def homo_eh(self) -> float:
@@ -71,7 +74,12 @@ class Engine(Protocol):
         uhf: int,
         *,
         spin_polarized: bool = False,
+        guess: EngineResult | None = None,
     ) -> EngineResult: ...
+    """One single point. ``guess``: an earlier result of the same state whose wavefunction
+    starts the SCC; without it the SCC starts from the engine's own guess. The result
+    depends only on the arguments, never on earlier calls (so a resumed run reproduces an
+    uninterrupted one)."""
 
 
 def _solvent_or_none(solvent: str | None) -> str | None:
@@ -82,8 +90,10 @@ def _solvent_or_none(solvent: str | None) -> str | None:
 class TbliteEngine:
     """GFN-xTB through tblite's Python API.
 
-    Reuses one calculator per (molecule, charge, spin) and restarts the SCC from
-    the previous wavefunction, which saves iterations along an optimisation.
+    Reuses the calculator along a chain of points (each with the previous as ``guess``). The SCC restarts from the
+    wavefunction of ``guess`` when one is given (the previous point of an optimisation, which
+    saves iterations), else it starts afresh: never from whatever was computed last, so a
+    result depends on its arguments alone, not on the order of earlier calls.
     """
 
     method: str = "GFN2-xTB"
@@ -93,13 +103,12 @@ class TbliteEngine:
     stats: EngineStats = field(default_factory=EngineStats)
     _calc: object | None = field(default=None, repr=False)
     _key: tuple | None = field(default=None, repr=False)
-    _last: object | None = field(default=None, repr=False)
 
-    def _calculator(self, numbers, positions_bohr, charge, uhf, spin_polarized):
+    def _calculator(self, numbers, positions_bohr, charge, uhf, spin_polarized, reuse):
         from tblite.interface import Calculator
 
         key = (tuple(int(z) for z in numbers), charge, uhf, spin_polarized)
-        if self._calc is not None and key == self._key:
+        if reuse and self._calc is not None and key == self._key:
             self._calc.update(positions=positions_bohr)
             return self._calc
         calc = Calculator(self.method, np.asarray(numbers), positions_bohr, charge=charge, uhf=uhf)
@@ -112,22 +121,28 @@ class TbliteEngine:
         if spin_polarized:
             calc.add("spin-polarization", 1.0)
             calc.set("save-integrals", 1)
-        self._calc, self._key, self._last = calc, key, None
+        self._calc, self._key = calc, key
         return calc
 
-    def compute(self, numbers, positions_angstrom, charge, uhf, *, spin_polarized=False):
+    def compute(self, numbers, positions_angstrom, charge, uhf, *, spin_polarized=False, guess=None):
         t0 = time.perf_counter()
         pos = np.asarray(positions_angstrom, dtype=float) * ANGSTROM_BOHR
+        key = (tuple(int(z) for z in numbers), int(charge), int(uhf), spin_polarized)
+        start = guess.restart if guess is not None else None
+        if start is not None and start[0] != key:  # another molecule or state: start afresh
+            start = None
         try:
-            calc = self._calculator(numbers, pos, int(charge), int(uhf), spin_polarized)
-            res = calc.singlepoint(self._last) if self._last is not None else calc.singlepoint()
+            # a point without a guess starts a new chain: a new calculator too, so nothing of
+            # earlier calls (not even round-off of cached data) reaches its result
+            calc = self._calculator(numbers, pos, int(charge), int(uhf), spin_polarized, start is not None)
+            # copy: the guess's own wavefunction stays as it was, so it can start another point
+            res = calc.singlepoint(start[1], copy=True) if start is not None else calc.singlepoint()
         except Exception as exc:  # tblite raises RuntimeError on SCC failure
-            self._calc = self._key = self._last = None
+            self._calc = self._key = None
             raise EngineError(f"tblite {self.method} failed (charge {charge}, uhf {uhf}): {exc}") from exc
         finally:
             self.stats.calls += 1
             self.stats.seconds += time.perf_counter() - t0
-        self._last = res
         t1 = time.perf_counter()
         occ = np.asarray(res.get("orbital-occupations"), dtype=float)
         eps = np.asarray(res.get("orbital-energies"), dtype=float)
@@ -146,6 +161,7 @@ class TbliteEngine:
             occupations=occ_total,
             dipole_au=np.array(res.get("dipole"), dtype=float),
             spin_populations=spin,
+            restart=(key, res),
         )
         self.stats.seconds += time.perf_counter() - t1
         return out
@@ -179,7 +195,8 @@ class XtbPythonEngine:
     accuracy: float = 1.0
     stats: EngineStats = field(default_factory=EngineStats)
 
-    def compute(self, numbers, positions_angstrom, charge, uhf, *, spin_polarized=False):
+    def compute(self, numbers, positions_angstrom, charge, uhf, *, spin_polarized=False, guess=None):
+        # a new calculator per call: the SCC always starts afresh (``guess`` is not used)
         try:
             from xtb.interface import Calculator
             from xtb.libxtb import VERBOSITY_MUTED
