@@ -26,7 +26,7 @@ def test_unknown_key_lists_allowed_keys():
 
 
 def test_bad_choice_lists_allowed_values():
-    with pytest.raises(SettingsError, match=r"\[compute\] solvent = 'acetonitril' is not allowed; allowed values: .*acetonitrile"):
+    with pytest.raises(SettingsError, match=r"\[compute\] solvent = 'acetonitril' is not a known solvent; allowed: .*acetonitrile"):
         _load({"compute": {"solvent": "acetonitril"}})
     with pytest.raises(SettingsError, match=r"\[compute\] n_electrons = 3 is not allowed; allowed values: 1, 2"):
         _load({"compute": {"n_electrons": 3}})
@@ -60,3 +60,22 @@ def test_load_from_folder_and_bad_toml(tmp_path):
         load_campaign(tmp_path)
     with pytest.raises(SettingsError, match="no campaign file"):
         load_campaign(tmp_path / "missing")
+
+
+def test_solvents_by_chemical_name_and_proxies_for_missing_ones():
+    """Issue 11: chemical names map to the engine's ALPB keywords (which include the
+    spellings 'hexandecane' and 'furane'); a solvent the engine lacks names its closest proxy."""
+    # keywords as listed for the ALPB model (Ehlert et al., J. Chem. Theory Comput. 2021, 17, 4250)
+    assert ComputeSettings(solvent="hexadecane").solvent == "hexandecane"
+    assert ComputeSettings(solvent="Dichloromethane").solvent == "ch2cl2"
+    assert ComputeSettings(solvent="1-octanol").solvent == "octanol"
+    assert ComputeSettings(solvent="furan").solvent == "furane"
+    assert ComputeSettings(solvent="tetrahydrofuran").result_hash() == ComputeSettings(solvent="thf").result_hash()
+    c = _load({"compute": {"solvent": "N,N-dimethylformamide"}})
+    assert c.compute.solvent == "dmf"
+    # from memory (CRC Handbook): propylene carbonate epsilon ~64.9, water 78.4, DMSO 46.7;
+    # 1,2-dimethoxyethane ~7.2, THF ~7.5
+    with pytest.raises(SettingsError, match=r"'propylene carbonate'.*no parameters.*'water' \(epsilon 78.4\), 'dmso' \(epsilon 46.7\).*explicitly"):
+        ComputeSettings(solvent="propylene carbonate")
+    with pytest.raises(SettingsError, match=r"closest parametrised solvents by dielectric constant are 'aniline' \(epsilon 6.9\), 'thf'"):
+        _load({"compute": {"solvent": "1,2-dimethoxyethane"}})

@@ -58,6 +58,8 @@ def test_run_every_step_and_report(tmp_path):
     # issue 11: run says which sources each step used (6 measured potentials, 1 calibrated)
     assert any(ln.strip() == "potentials: measured 6, calibrated 1, uncalibrated 0" for ln in lines)
     assert any(ln.strip() == "rates that trained the model: measured 6, fitted 0" for ln in lines)
+    assert any(ln.strip() == "ranked on potentials: measured 6, calibrated 1, uncalibrated 0; "
+               "rates: measured 6, fitted 0, predicted 1" for ln in lines)
     res = folder / "results"
     cal = json.loads((res / "calibration.json").read_text())
     assert cal["lines"][0]["slope"] == pytest.approx(0.80, abs=1e-6)  # exact rule recovered
@@ -70,6 +72,7 @@ def test_run_every_step_and_report(tmp_path):
     assert "<script>alert(1)</script>" not in html  # every string is escaped
     assert "x&lt;script&gt;alert(1)&lt;/script&gt;" in html
     assert "test data made by a known rule" in html
+    assert "potentials vs Fc+/Fc;" in html  # the reference as a person writes it, not its key
     assert "data:image/png;base64," in html  # figures embedded: one self-contained file
     assert "safety data sheets" in html
     # provenance: the engine's version and the key of the stored states are in the report

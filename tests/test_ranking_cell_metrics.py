@@ -75,10 +75,16 @@ def test_vanadium_through_the_table():
     assert out.loc[0, col.CELL_VOLTAGE] == pytest.approx(1.26)
     assert out.loc[0, col.ENERGY_DENSITY] == pytest.approx(27.0, abs=0.1)
     assert out.loc[0, col.CAPACITY_VOL] == pytest.approx(1.6 * 26.8015, abs=1e-3)
-    # uncalibrated: interval from the campaign setting (0.3 V, Davis & Fry, JPCA 2010, 114, 12299)
+    # uncalibrated: the oxidation band of the published reference set (benchmarks/
+    # reference_set_errors.csv: errors computed - published from -0.608 to +0.774 V, 95 %)
     assert out.loc[0, col.POTENTIAL_BASIS] == "uncalibrated"
-    assert out.loc[0, col.CELL_VOLTAGE_LOW] == pytest.approx(0.96)
-    assert out.loc[0, col.CELL_VOLTAGE_HIGH] == pytest.approx(1.56)
+    assert out.loc[0, col.CELL_VOLTAGE_LOW] == pytest.approx(1.26 - 0.774)
+    assert out.loc[0, col.CELL_VOLTAGE_HIGH] == pytest.approx(1.26 + 0.608)
+    # a symmetric band set in [cell] replaces it (0.3 V, Davis & Fry, JPCA 2010, 114, 12299)
+    flat = cell_metrics(t, CellSettings(counter="potential", counter_potential_v=0.0,
+                                        concentration_mol_per_l=1.6, uncalibrated_uncertainty_v=0.3), REF)
+    assert flat.loc[0, col.CELL_VOLTAGE_LOW] == pytest.approx(0.96)
+    assert flat.loc[0, col.CELL_VOLTAGE_HIGH] == pytest.approx(1.56)
     assert "no valid molar_mass" in out.loc[0, col.RANKING_NOTE]
     # utilisation scales energy, not the theoretical capacity
     half = cell_metrics(t, CellSettings(counter="potential", counter_potential_v=0.0,
@@ -191,7 +197,7 @@ def test_bad_rows_do_not_stop_the_batch():
     assert np.isnan(out.loc["c2", col.CELL_VOLTAGE])
     assert "n_electrons 0 is not a positive whole number" in out.loc["a1", col.RANKING_NOTE]
     assert "no potential" in out.loc["a2", col.RANKING_NOTE]
-    assert "no predicted rate" in out.loc["a2", col.RANKING_NOTE]
+    assert "no measured, fitted or predicted rate" in out.loc["a2", col.RANKING_NOTE]
     assert out.loc["c1", col.RANKING_NOTE] == ""
     assert out.loc["c1", col.ENERGY_DENSITY] > 0
 
@@ -215,3 +221,35 @@ def test_settings_validation_messages():
     s = section_from_mapping(CellSettings, {"counter": "potential", "counter_potential_v": -1,
                                             "rate_order": 2, "tank_basis": "one-tank"}, "cell")
     assert s.counter_potential_v == -1.0 and s.rate_order == 2
+
+
+def test_measured_candidates_are_ranked_on_their_measurements():
+    """Issue 11: a measured potential and a measured or fitted rate win over the computed
+    and predicted ones; the predictions stay in their own columns."""
+    t = pd.DataFrame({
+        col.ID: ["m", "f", "p"], col.ROLE: "catholyte", col.N_ELECTRONS: 1, col.MOLAR_MASS: 138.16,
+        col.potential_uncalibrated(REF): [0.9, 0.9, 0.9],
+        col.potential_calibrated(REF): [0.70, 0.70, 0.70],
+        col.potential_calibrated_pi_low(REF): [0.6, 0.6, 0.6],
+        col.potential_calibrated_pi_high(REF): [0.8, 0.8, 0.8],
+        col.potential_measured(REF): [0.62, np.nan, np.nan],
+        col.POTENTIAL_MEASURED_UNCERTAINTY: [0.01, np.nan, np.nan],
+        col.LOG10_K_PRED_FIRST: [-2.0, -2.0, -2.0],
+        col.LOG10_K_PRED_FIRST + col.PI_LOW_SUFFIX: [-2.5, -2.5, -2.5],
+        col.LOG10_K_PRED_FIRST + col.PI_HIGH_SUFFIX: [-1.5, -1.5, -1.5],
+        col.LOG10_K_FIRST: [-3.0, -2.8, np.nan],
+        col.LOG10_K_FIRST + col.CI_LOW_SUFFIX: [np.nan, -2.9, np.nan],
+        col.LOG10_K_FIRST + col.CI_HIGH_SUFFIX: [np.nan, -2.7, np.nan],
+        col.RATE_SOURCE: ["measured", "fitted", ""],
+    })
+    out = cell_metrics(t, CellSettings(counter="potential", counter_potential_v=-1.0), REF).set_index(col.ID)
+    assert list(out[col.POTENTIAL_BASIS]) == ["measured", "calibrated", "calibrated"]
+    assert list(out[col.RATE_BASIS]) == ["measured", "fitted", "predicted"]
+    assert out.loc["m", col.CELL_VOLTAGE] == pytest.approx(1.62)
+    assert out.loc["m", col.CELL_VOLTAGE_LOW] == pytest.approx(1.61)
+    # first order: t1/2 = ln 2 / k (any physical-chemistry text)
+    assert out.loc["m", col.HALF_LIFE] == pytest.approx(math.log(2) / 1e-3)
+    assert "measured rate without interval" in out.loc["m", col.RANKING_NOTE]
+    assert out.loc["f", col.HALF_LIFE_LOW] == pytest.approx(math.log(2) / 10 ** -2.7)
+    assert out.loc["p", col.HALF_LIFE] == pytest.approx(math.log(2) / 1e-2)
+    assert out.loc["m", col.LOG10_K_PRED_FIRST] == pytest.approx(-2.0)  # prediction kept for residuals

@@ -160,3 +160,29 @@ def test_cli_calibrate(tmp_path):
     r = CliRunner().invoke(main, ["calibrate", str(tmp_path)])
     assert r.exit_code == 0, r.output
     assert "10 candidate(s): uncalibrated" in r.output
+
+
+def test_measured_solvent_notes_fc_in_water_user_reference_and_uncertainty(tmp_path):
+    """Issue 11: measurements in another solvent get a note, Fc+/Fc in water a warning; a
+    user-defined reference with its stated offset converts; a measured interval is carried."""
+    p = tmp_path / "m.csv"
+    pd.DataFrame({"id": ["a", "b", "c", "d"], "potential_v": [0.30, 0.70, 0.10, 0.20],
+                  "reference": ["Fc+/Fc", "SCE", "Ag wire", "Fc+/Fc"],
+                  "solvent": ["MeCN", "dichloromethane", "acetonitrile", "water"],
+                  "uncertainty_v": [0.01, 0.02, "", 0.05]}).to_csv(p, index=False)
+    m, notes = read_measured_potentials(p, "fc", "acetonitrile", ("Ag wire", -0.25))
+    got = m.set_index("id")
+    # Connelly & Geiger, Chem. Rev. 1996, 96, 877: Fc+/Fc = +0.40 V vs SCE in MeCN
+    assert got.loc["b", "measured_v"] == pytest.approx(0.30)
+    # the user's wire stated at -0.25 V vs Fc+/Fc: +0.10 V vs it is -0.15 V vs Fc+/Fc
+    assert got.loc["c", "measured_v"] == pytest.approx(-0.15)
+    assert got.loc["a", "uncertainty_v"] == pytest.approx(0.01) and np.isnan(got.loc["c", "uncertainty_v"])
+    text = "\n".join(notes)
+    assert "measured in dichloromethane, water while the compute uses acetonitrile" in text
+    assert "warning: m.csv: Fc+/Fc reference in water for d" in text
+    t = make_table()
+    t.loc[0, columns.ID] = "a"
+    out, _ = calibrate_table(t, pd.concat([m, pd.DataFrame({"id": ["dmb-1", "dmb-2", "dmb-3"],
+                                                            "measured_v": [0.4, 0.5, 0.6]})]), "fc")
+    row = out.set_index(columns.ID).loc["a"]
+    assert row[columns.POTENTIAL_MEASURED_UNCERTAINTY] == pytest.approx(0.01)

@@ -52,5 +52,28 @@ def test_rt_ln10_at_298_k():
 
 
 def test_unknown_reference_names_allowed_values():
-    with pytest.raises(SettingsError, match="unknown reference electrode 'Hg/HgO'.*allowed: agagcl, fc, sce, she"):
+    with pytest.raises(SettingsError, match=r"unknown reference electrode 'Hg/HgO'.*allowed: SHE, SCE, Ag/AgCl \(sat. KCl\), Fc\+/Fc"):
         units.reference_key("Hg/HgO")
+
+
+def test_ag_ag_plus_user_reference_and_labels():
+    """Issue 11: Ag/Ag+ (0.01 M AgNO3, MeCN), a user-defined reference, the same spellings in
+    campaign.toml as in the measured file, and Fc+/Fc written the way a person reads it."""
+    # Pavlishchuk & Addison, Inorg. Chim. Acta 2000, 298, 97 (from memory): Fc+/Fc = +0.087 V
+    # vs Ag/Ag+ (0.01 M AgNO3) in acetonitrile
+    assert units.convert_potential(0.0, "Fc+/Fc", "Ag/Ag+") == pytest.approx(0.087)
+    assert units.convert_potential(0.0, "Ag/Ag+ (0.01 M AgNO3, MeCN)", "sce") == pytest.approx(0.40 - 0.087)
+    # a user's reference stated at -0.25 V vs Fc+/Fc: a couple at 0 V vs Fc+/Fc is +0.25 V vs it
+    assert units.convert_potential(0.0, "fc", "user", user_v_vs_fc=-0.25) == pytest.approx(0.25)
+    with pytest.raises(SettingsError, match="user_reference_v_vs_fc"):
+        units.convert_potential(0.0, "fc", "user")
+    assert units.reference_label("fc") == "Fc+/Fc"
+    assert units.reference_label("user", "Ag wire") == "Ag wire"
+    from redoxfront.campaign import ComputeSettings
+
+    assert ComputeSettings(reference="Fc+/Fc").reference == "fc"
+    assert ComputeSettings(reference="Ag/Ag+").reference == "agag"
+    assert ComputeSettings(reference="Ag wire", user_reference_name="Ag wire",
+                           user_reference_v_vs_fc=-0.25).reference == "user"
+    with pytest.raises(SettingsError, match=r"\[compute\] user_reference_v_vs_fc"):
+        ComputeSettings(reference="user")

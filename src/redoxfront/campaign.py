@@ -22,7 +22,7 @@ from typing import Any, Mapping, TypeVar
 from redoxfront.errors import SettingsError
 from redoxfront.units import (
     ABSOLUTE_SHE_V,
-    REFERENCE_ELECTRODES_V_VS_SHE,
+    USER_REFERENCE,
     reference_key,
 )
 
@@ -40,6 +40,84 @@ ALPB_SOLVENTS: tuple[str, ...] = (
     "hexandecane", "hexane", "methanol", "nitromethane", "octanol", "phenol",
     "toluene", "thf", "water",
 )
+SOLVENT_NAMES: dict[str, str] = {
+    "acetone": "acetone", "propanone": "acetone",
+    "acetonitrile": "acetonitrile", "mecn": "acetonitrile", "ch3cn": "acetonitrile",
+    "aniline": "aniline", "benzaldehyde": "benzaldehyde", "benzene": "benzene",
+    "dichloromethane": "ch2cl2", "methylene chloride": "ch2cl2", "dcm": "ch2cl2", "ch2cl2": "ch2cl2",
+    "chloroform": "chcl3", "trichloromethane": "chcl3", "chcl3": "chcl3",
+    "carbon disulfide": "cs2", "cs2": "cs2",
+    "1,4-dioxane": "dioxane", "dioxane": "dioxane",
+    "n,n-dimethylformamide": "dmf", "dimethylformamide": "dmf", "dmf": "dmf",
+    "dimethyl sulfoxide": "dmso", "dimethylsulfoxide": "dmso", "dmso": "dmso",
+    "diethyl ether": "ether", "ether": "ether",
+    "ethyl acetate": "ethylacetate", "ethylacetate": "ethylacetate",
+    "furan": "furane", "furane": "furane",
+    "hexadecane": "hexandecane", "n-hexadecane": "hexandecane", "hexandecane": "hexandecane",
+    "hexane": "hexane", "n-hexane": "hexane",
+    "methanol": "methanol", "meoh": "methanol",
+    "nitromethane": "nitromethane",
+    "1-octanol": "octanol", "octanol": "octanol", "n-octanol": "octanol",
+    "phenol": "phenol", "toluene": "toluene",
+    "tetrahydrofuran": "thf", "thf": "thf",
+    "water": "water", "h2o": "water",
+    "none": "none", "gas phase": "none", "vacuum": "none",
+}
+"""Chemical names (and common abbreviations) of the solvents the engine's ALPB model is
+parametrised for, mapped to the engine's keywords (which include the spellings
+'hexandecane' and 'furane'). Write the chemical name in campaign.toml."""
+
+DIELECTRIC_CONSTANTS: dict[str, float] = {
+    # relative permittivity near 20-25 degC; from memory of the CRC Handbook of Chemistry and
+    # Physics table "Permittivity (dielectric constant) of liquids" -- check before relying on them
+    "acetone": 20.7, "acetonitrile": 36.6, "aniline": 6.9, "benzaldehyde": 17.8, "benzene": 2.27,
+    "ch2cl2": 8.93, "chcl3": 4.81, "cs2": 2.63, "dioxane": 2.21, "dmf": 36.7, "dmso": 46.7,
+    "ether": 4.27, "ethylacetate": 6.02, "furane": 2.94, "hexandecane": 2.05, "hexane": 1.89,
+    "methanol": 32.6, "nitromethane": 36.6, "octanol": 10.3, "phenol": 12.4, "toluene": 2.38,
+    "thf": 7.52, "water": 78.4,
+}
+"""Dielectric constants of the parametrised solvents (engine keyword -> epsilon_r)."""
+
+UNPARAMETRISED_SOLVENTS: dict[str, float] = {
+    # same source and caveat as DIELECTRIC_CONSTANTS (from memory)
+    "propylene carbonate": 64.9, "ethylene carbonate": 89.8, "dimethyl carbonate": 3.1,
+    "diethyl carbonate": 2.8, "ethyl methyl carbonate": 3.0, "1,2-dimethoxyethane": 7.2,
+    "dimethoxyethane": 7.2, "dme": 7.2, "diglyme": 7.2, "gamma-butyrolactone": 39.0,
+    "sulfolane": 43.3, "n-methyl-2-pyrrolidone": 32.2, "nmp": 32.2, "n,n-dimethylacetamide": 37.8,
+    "ethanol": 24.5, "2-propanol": 19.9, "isopropanol": 19.9, "propionitrile": 29.7,
+    "butyronitrile": 24.8, "pc": 64.9,
+}
+"""Common electrolyte solvents the engine lacks, with their dielectric constants."""
+
+
+def closest_solvent_proxies(epsilon: float, n: int = 2) -> list[tuple[str, float]]:
+    """The ``n`` parametrised solvents closest in dielectric constant (keyword, epsilon_r)."""
+    return sorted(DIELECTRIC_CONSTANTS.items(), key=lambda kv: abs(kv[1] - epsilon))[:n]
+
+
+def solvent_keyword(name: str, where: str = "[compute] solvent") -> str:
+    """The engine keyword of a solvent given by its chemical name (or keyword).
+
+    A solvent the engine lacks (propylene carbonate, dimethoxyethane, ...) is an error that
+    names the closest parametrised proxies by dielectric constant, for the user to choose
+    explicitly; an unknown name lists the accepted ones.
+    """
+    key = str(name).strip().lower()
+    if key in SOLVENT_NAMES:
+        return SOLVENT_NAMES[key]
+    if key in UNPARAMETRISED_SOLVENTS:
+        eps = UNPARAMETRISED_SOLVENTS[key]
+        proxies = ", ".join(f"'{k}' (epsilon {e:g})" for k, e in closest_solvent_proxies(eps))
+        raise SettingsError(
+            f"{where} = '{name}': the engine's implicit solvent (ALPB) has no parameters for it "
+            f"(epsilon {eps:g}); the closest parametrised solvents by dielectric constant are "
+            f"{proxies}. Choose one explicitly as a proxy; it reproduces the bulk polarity only, "
+            "not specific solvation, so calibrate against potentials measured in your solvent"
+        )
+    names = sorted(k for k in SOLVENT_NAMES if k not in ("mecn", "ch3cn", "dcm", "h2o", "meoh"))
+    raise SettingsError(f"{where} = '{name}' is not a known solvent; allowed: {', '.join(names)}")
+
+
 METHODS: tuple[str, ...] = ("GFN2-xTB", "GFN1-xTB", "IPEA1-xTB")
 ROLES: tuple[str, ...] = ("anolyte", "catholyte")
 
@@ -166,11 +244,17 @@ class OptimizerSettings:
 class ComputeSettings:
     """Everything that decides the semiempirical results of one candidate."""
 
-    solvent: str = field(default="acetonitrile", metadata=choice(*ALPB_SOLVENTS, "none"))
+    solvent: str = "acetonitrile"
+    """Chemical name (``dichloromethane``, ``1-octanol``) or engine keyword; stored as the keyword."""
     method: str = field(default="GFN2-xTB", metadata=choice(*METHODS))
     role: str = field(default="catholyte", metadata=choice(*ROLES))
     n_electrons: int = field(default=1, metadata=choice(1, 2))
-    reference: str = field(default="fc", metadata=choice(*REFERENCE_ELECTRODES_V_VS_SHE))
+    reference: str = "fc"
+    """Reference electrode of every reported potential, in any spelling the measured file
+    accepts (``Fc+/Fc``, ``SCE``, ``Ag/AgCl``, ``Ag/Ag+``, ``user``); stored as its short key."""
+    user_reference_name: str = "user-defined reference"
+    user_reference_v_vs_fc: float | None = None
+    """Stated potential of the user-defined reference ('user') vs Fc+/Fc, V."""
     absolute_she: str = field(default="trasatti", metadata=choice(*ABSOLUTE_SHE_V))
     ipea_shift_ev: float = 4.8455
     spin_polarized: bool = False
@@ -181,6 +265,17 @@ class ComputeSettings:
     engine: str = field(default="tblite", metadata=choice("tblite", "xtb-python"))
     conformers: ConformerSettings = ConformerSettings()
     optimizer: OptimizerSettings = OptimizerSettings()
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "solvent", solvent_keyword(self.solvent))
+        name = str(self.reference).strip()
+        key = USER_REFERENCE if name.lower() == self.user_reference_name.strip().lower() else reference_key(name)
+        object.__setattr__(self, "reference", key)
+        if key == USER_REFERENCE and self.user_reference_v_vs_fc is None:
+            raise SettingsError(
+                f"[compute] reference = '{name}' is the user-defined reference: state its potential "
+                "vs Fc+/Fc in [compute] user_reference_v_vs_fc (V)"
+            )
 
     def result_hash(self) -> str:
         """Hash of the settings that change stored energies and geometries.

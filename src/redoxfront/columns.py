@@ -87,7 +87,29 @@ MEASURED = "measured"
 SOLUBILITY = "solubility_mol_per_l"
 """Optional per-candidate solubility cap, mol/L."""
 POTENTIAL_BASIS = "potential_basis"
-"""'calibrated' or 'uncalibrated': which potential the cell voltage used."""
+"""'measured', 'calibrated' or 'uncalibrated': which potential the cell voltage used."""
+
+
+def potential_used(ref: str) -> str:
+    """The potential a candidate is ranked on (measured, calibrated or uncalibrated: see
+    ``potential_basis``), V vs ``ref``."""
+    return f"potential_used_v_vs_{ref}"
+
+
+def potential_used_low(ref: str) -> str:
+    """Lower end of the 95 % interval of the potential a candidate is ranked on, V vs ``ref``."""
+    return f"potential_used_pi95_low_v_vs_{ref}"
+
+
+def potential_used_high(ref: str) -> str:
+    """Upper end of the 95 % interval of the potential a candidate is ranked on, V vs ``ref``."""
+    return f"potential_used_pi95_high_v_vs_{ref}"
+
+
+POTENTIAL_FLAG = "potential_flag"
+"""Why a potential's interval is wider than its basis alone gives (two-electron second step)."""
+POTENTIAL_MEASURED_UNCERTAINTY = "potential_measured_uncertainty_v"
+"""Half-width of the 95 % interval of a measured potential, V (the measured file's ``uncertainty_v``)."""
 PARTNER_ID = "partner_id"
 """Counter electrolyte of the cell: a candidate id (best partner) or 'fixed'."""
 CONCENTRATION = "concentration_mol_per_l"
@@ -99,6 +121,9 @@ ENERGY_DENSITY_HIGH = "energy_density_pi95_high_wh_per_l"
 HALF_LIFE_LOW = "half_life_pi95_low_h"
 HALF_LIFE_HIGH = "half_life_pi95_high_h"
 RATE_ORDER = "rate_order"
+RATE_BASIS = "rate_basis"
+"""'measured', 'fitted' or 'predicted': which decomposition rate the half-life used."""
+
 EXTRAPOLATING = "extrapolating"
 """True when the rate model extrapolates or the potential lies outside the calibration range."""
 RANKING_NOTE = "ranking_note"

@@ -62,6 +62,8 @@ def run_campaign(
     from redoxfront.statistics.calibration import calibrate_campaign
     from redoxfront.statistics.step import fit_campaign
 
+    from redoxfront import columns
+
     camp: Campaign = load_campaign(path)
     summary = RunSummary()
 
@@ -108,6 +110,11 @@ def run_campaign(
     if rates_given or not needs_model:
         ranked = rank_campaign(camp, progress=progress)
         note("rank", f"{len(ranked)} candidates ranked (results/ranking.csv, results/picks.csv, results/figures/)")
+        note("", "ranked on potentials: " + ", ".join(
+            f"{k} {int((ranked[columns.POTENTIAL_BASIS] == k).sum())}" for k in ("measured", "calibrated", "uncalibrated"))
+            + "; rates: " + ", ".join(
+            f"{k} {int((ranked[columns.RATE_BASIS] == k).sum())}" for k in ("measured", "fitted", "predicted")
+            if columns.RATE_BASIS in ranked))
     else:
         note("rank", "skipped: half-lives need the rate model (or rank on objectives without half_life)")
 

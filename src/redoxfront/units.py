@@ -60,11 +60,17 @@ SCE_VS_SHE_V: float = 0.241
 AGAGCL_SAT_KCL_VS_SHE_V: float = 0.197
 FC_VS_SCE_MECN_V: float = 0.40
 
+# Ag/Ag+ (0.01 M AgNO3 in acetonitrile, with 0.1 M tetraalkylammonium salt): Fc+/Fc lies
+# +0.087 V against it (Pavlishchuk & Addison, Inorg. Chim. Acta 2000, 298, 97, Table 1; value
+# from memory). Defined relative to Fc+/Fc so both non-aqueous references stay consistent.
+FC_VS_AGAG_MECN_V: float = 0.087
+
 REFERENCE_ELECTRODES_V_VS_SHE: dict[str, float] = {
     "she": 0.0,
     "sce": SCE_VS_SHE_V,
     "agagcl": AGAGCL_SAT_KCL_VS_SHE_V,
     "fc": SCE_VS_SHE_V + FC_VS_SCE_MECN_V,
+    "agag": SCE_VS_SHE_V + FC_VS_SCE_MECN_V - FC_VS_AGAG_MECN_V,
 }
 """Reference electrode potentials vs SHE, V. Keys are the short names used in
 column names (``potential_v_vs_fc``) and campaign files."""
@@ -80,25 +86,73 @@ REFERENCE_ALIASES: dict[str, str] = {
     "fc+/fc": "fc",
     "fc/fc+": "fc",
     "ferrocene": "fc",
+    "ferrocenium/ferrocene": "fc",
+    "agag": "agag",
+    "ag/ag+": "agag",
+    "ag/agno3": "agag",
+    "ag/ag+ (0.01 m agno3)": "agag",
+    "ag/ag+ (0.01 m agno3, mecn)": "agag",
+    "ag/ag+ (0.01 m agno3 in mecn)": "agag",
+    "ag/ag+ (0.01 m agno3 in acetonitrile)": "agag",
+    "user": "user",
 }
+
+USER_REFERENCE = "user"
+"""Key of the user-defined reference: its potential vs Fc+/Fc is stated in ``[compute]
+user_reference_v_vs_fc`` (and its name in ``user_reference_name``)."""
+
+REFERENCE_LABELS: dict[str, str] = {
+    "she": "SHE",
+    "sce": "SCE",
+    "agagcl": "Ag/AgCl (sat. KCl)",
+    "fc": "Fc+/Fc",
+    "agag": "Ag/Ag+ (0.01 M AgNO3, MeCN)",
+    "user": "user-defined reference",
+}
+"""How a reference is written wherever a person reads it (never the short key)."""
+
+
+def reference_label(name: str, user_name: str | None = None) -> str:
+    """The reference as a person reads it: ``Fc+/Fc``, ``SCE`` ... (the user's name for 'user')."""
+    key = reference_key(name)
+    if key == USER_REFERENCE and user_name:
+        return user_name
+    return REFERENCE_LABELS[key]
+
+
+def reference_v_vs_she(name: str, user_v_vs_fc: float | None = None) -> float:
+    """Potential of a reference electrode vs SHE, V; the user-defined one needs its stated
+    offset vs Fc+/Fc."""
+    key = reference_key(name)
+    if key == USER_REFERENCE:
+        if user_v_vs_fc is None:
+            raise SettingsError(
+                "the user-defined reference needs its potential vs Fc+/Fc: set [compute] "
+                "user_reference_v_vs_fc (V)"
+            )
+        return REFERENCE_ELECTRODES_V_VS_SHE["fc"] + float(user_v_vs_fc)
+    return REFERENCE_ELECTRODES_V_VS_SHE[key]
 
 
 def reference_key(name: str) -> str:
-    """Normalise a reference-electrode name to its short key (``she``, ``sce``, ``agagcl``, ``fc``)."""
-    key = REFERENCE_ALIASES.get(str(name).strip().lower())
+    """Normalise a reference-electrode name (``Fc+/Fc``, ``Ag/AgCl``, ``SCE`` ...) to its short
+    key (``fc``, ``agagcl``, ``sce``, ``she``, ``agag``, ``user``), the one in column names."""
+    key = REFERENCE_ALIASES.get(" ".join(str(name).strip().lower().split()))
     if key is None:
-        allowed = ", ".join(sorted(set(REFERENCE_ALIASES.values())))
+        allowed = ", ".join(REFERENCE_LABELS[k] for k in REFERENCE_LABELS) + " (or the short keys " \
+            + ", ".join(REFERENCE_LABELS) + ")"
         raise SettingsError(f"unknown reference electrode '{name}'; allowed: {allowed}")
     return key
 
 
-def convert_potential(value_v: float, from_ref: str, to_ref: str) -> float:
+def convert_potential(value_v: float, from_ref: str, to_ref: str, user_v_vs_fc: float | None = None) -> float:
     """Convert a potential (V) measured against ``from_ref`` to one against ``to_ref``.
 
-    E(vs B) = E(vs A) + E(A vs SHE) - E(B vs SHE).
+    E(vs B) = E(vs A) + E(A vs SHE) - E(B vs SHE). ``user_v_vs_fc``: the stated potential of
+    the user-defined reference vs Fc+/Fc, V (needed only when 'user' is involved).
     """
-    a = REFERENCE_ELECTRODES_V_VS_SHE[reference_key(from_ref)]
-    b = REFERENCE_ELECTRODES_V_VS_SHE[reference_key(to_ref)]
+    a = reference_v_vs_she(from_ref, user_v_vs_fc)
+    b = reference_v_vs_she(to_ref, user_v_vs_fc)
     return value_v + a - b
 
 

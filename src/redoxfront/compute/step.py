@@ -297,7 +297,8 @@ def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[
     steps = []
     for prev, nxt in zip(states[:-1], states[1:]):
         dg = reduction_free_energy_ev(prev.lowest.energy_eh, nxt.lowest.energy_eh, cand.role)
-        steps.append(potential_v(dg, shift_ev=settings.ipea_shift_ev, absolute_she=settings.absolute_she, reference=ref))
+        steps.append(potential_v(dg, shift_ev=settings.ipea_shift_ev, absolute_she=settings.absolute_she,
+                                 reference=ref, user_reference_v_vs_fc=settings.user_reference_v_vs_fc))
     row[C.STATUS] = "ok"
     row[C.potential_uncalibrated(ref)] = float(np.mean(steps))
     if len(steps) == 2:

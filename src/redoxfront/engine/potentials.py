@@ -21,8 +21,7 @@ from __future__ import annotations
 from redoxfront.units import (
     ABSOLUTE_SHE_V,
     HARTREE_EV,
-    REFERENCE_ELECTRODES_V_VS_SHE,
-    reference_key,
+    reference_v_vs_she,
 )
 
 
@@ -42,7 +41,8 @@ def potential_v(
     shift_ev: float,
     absolute_she: str = "trasatti",
     reference: str = "fc",
+    user_reference_v_vs_fc: float | None = None,
 ) -> float:
     """Potential of a one-electron couple, V vs ``reference`` (uncalibrated)."""
     e_vs_she = -(delta_g_red_ev + shift_ev) - ABSOLUTE_SHE_V[absolute_she]
-    return e_vs_she - REFERENCE_ELECTRODES_V_VS_SHE[reference_key(reference)]
+    return e_vs_she - reference_v_vs_she(reference, user_reference_v_vs_fc)

@@ -18,7 +18,8 @@ Science (any electrochemistry or physical-chemistry text; values from redoxfront
 - half-life of the charged species: first order ln 2 / k, second order 1 / (k c0) with
   c0 the operating concentration (charged at full state of charge).
 - directly computed, uncalibrated potentials are typically ~0.3 V off (Davis & Fry,
-  J. Phys. Chem. A 2010, 114, 12299); that is the default uncertainty used for them.
+  J. Phys. Chem. A 2010, 114, 12299); the interval given to them is the band of their couple
+  type measured on published potentials (:mod:`redoxfront.ranking.potential_bands`).
 """
 
 from __future__ import annotations
@@ -56,8 +57,9 @@ class CellSettings:
     rate_order : 1 (k in 1/h) or 2 (k in L/(mol h)) for the decomposition rate; unset =
         the order the rate model used (column ``rate_order``), else whichever predicted
         rate column the table holds.
-    uncalibrated_uncertainty_v : half-width of the 95 % interval given to uncalibrated
-        potentials, V (~0.3 V typical; Davis & Fry, J. Phys. Chem. A 2010, 114, 12299).
+    uncalibrated_uncertainty_v : half-width of a symmetric 95 % interval for uncalibrated
+        potentials, V. Unset (default): the band of the couple type derived from published
+        measurements (:mod:`redoxfront.ranking.potential_bands`).
     """
 
     counter: str = field(default="best-partner", metadata=choice(*COUNTER_MODES))
@@ -68,7 +70,7 @@ class CellSettings:
     tank_basis: str = field(default="two-tank", metadata=choice(*TANK_BASES))
     utilisation: float = field(default=1.0, metadata=bounded(0.0, 1.0))
     rate_order: int | None = field(default=None, metadata=choice(1, 2))
-    uncalibrated_uncertainty_v: float = field(default=0.3, metadata=bounded(0.0, 5.0))
+    uncalibrated_uncertainty_v: float | None = field(default=None, metadata=bounded(0.0, 5.0))
 
     def __post_init__(self) -> None:
         if self.counter == "potential" and self.counter_potential_v is None:
@@ -154,26 +156,53 @@ def truthy(values: pd.Series) -> pd.Series:
     return values.map(lambda v: str(v).strip().lower() in TRUE_WORDS if pd.notna(v) else False).astype(bool)
 
 
-def _potentials(table: pd.DataFrame, settings: CellSettings, ref: str, notes: list[list[str]]):
-    """Potential used, its 95 % interval and basis per row."""
-    cal = _numeric(table, col.potential_calibrated(ref))
-    cal_lo = _numeric(table, col.potential_calibrated_pi_low(ref))
-    cal_hi = _numeric(table, col.potential_calibrated_pi_high(ref))
-    raw = _numeric(table, col.potential_uncalibrated(ref))
-    use_cal = cal.notna().to_numpy()
-    e = np.where(use_cal, cal, raw)
-    hw = settings.uncalibrated_uncertainty_v
-    has_pi = use_cal & cal_lo.notna().to_numpy() & cal_hi.notna().to_numpy()
-    lo = np.where(has_pi, np.minimum(cal_lo, e), e - hw)
-    hi = np.where(has_pi, np.maximum(cal_hi, e), e + hw)
-    basis = np.where(use_cal, "calibrated", np.where(np.isfinite(e), "uncalibrated", ""))
+def _potentials(table: pd.DataFrame, settings: CellSettings, ref: str, notes: list[list[str]],
+                role: np.ndarray, n_e: np.ndarray):
+    """Potential used, its 95 % interval, basis and flag per row.
+
+    Rule: a measured potential (converted to the campaign reference by the calibrate step)
+    wins, with the measurement's own interval where the file gives one (``uncertainty_v``);
+    else the calibrated potential with its prediction interval; else the uncalibrated one
+    with the band of its couple type (:mod:`redoxfront.ranking.potential_bands`).
+    Computed potentials of two-electron carriers get a wider interval and a flag.
+    """
+    from redoxfront.ranking.potential_bands import SECOND_STEP_FLAG, SECOND_STEP_OVERESTIMATE_V, uncalibrated_interval
+
+    meas = _numeric(table, col.potential_measured(ref)).to_numpy()
+    meas_u = _numeric(table, col.POTENTIAL_MEASURED_UNCERTAINTY).to_numpy()
+    cal = _numeric(table, col.potential_calibrated(ref)).to_numpy()
+    cal_lo = _numeric(table, col.potential_calibrated_pi_low(ref)).to_numpy()
+    cal_hi = _numeric(table, col.potential_calibrated_pi_high(ref)).to_numpy()
+    raw = _numeric(table, col.potential_uncalibrated(ref)).to_numpy()
+    use_meas = np.isfinite(meas)
+    use_cal = ~use_meas & np.isfinite(cal)
+    e = np.where(use_meas, meas, np.where(use_cal, cal, raw))
+    raw_lo, raw_hi, _flags = uncalibrated_interval(raw, role, n_e, settings.uncalibrated_uncertainty_v)
+    hw = 0.5 * SECOND_STEP_OVERESTIMATE_V
+    two = n_e == 2
+    cath = role == "catholyte"
+    has_pi = use_cal & np.isfinite(cal_lo) & np.isfinite(cal_hi)
+    cal_lo2 = np.where(two & cath, cal_lo - hw, cal_lo)
+    cal_hi2 = np.where(two & ~cath, cal_hi + hw, cal_hi)
+    meas_ok = use_meas & np.isfinite(meas_u)
+    lo = np.where(use_meas, np.where(meas_ok, meas - meas_u, meas),
+                  np.where(has_pi, np.minimum(cal_lo2, e), raw_lo))
+    hi = np.where(use_meas, np.where(meas_ok, meas + meas_u, meas),
+                  np.where(has_pi, np.maximum(cal_hi2, e), raw_hi))
+    basis = np.where(use_meas, "measured", np.where(use_cal, "calibrated", np.where(np.isfinite(e), "uncalibrated", "")))
+    flag = np.where(~use_meas & two & np.isfinite(e), SECOND_STEP_FLAG, "")
+    for r in np.flatnonzero(use_meas & ~meas_ok):
+        notes[r].append("measured potential without an interval (no uncertainty_v given): taken as exact")
     for r in np.flatnonzero(use_cal & ~has_pi):
-        notes[r].append(f"calibrated potential without interval: +-{hw} V used")
+        notes[r].append("calibrated potential without interval: the uncalibrated band of its couple type used")
+    lo = np.where(use_cal & ~has_pi, raw_lo - raw + e, lo)
+    hi = np.where(use_cal & ~has_pi, raw_hi - raw + e, hi)
     for r in np.flatnonzero(~np.isfinite(e)):
         notes[r].append(
-            f"no potential (columns {col.potential_calibrated(ref)} / {col.potential_uncalibrated(ref)} empty)"
+            f"no potential (columns {col.potential_measured(ref)} / {col.potential_calibrated(ref)} / "
+            f"{col.potential_uncalibrated(ref)} empty)"
         )
-    return e, lo, hi, basis
+    return e, lo, hi, basis, flag
 
 
 def resolve_rate_order(table: pd.DataFrame, setting: int | None) -> int:
@@ -229,7 +258,7 @@ def cell_metrics(
         notes[r].append(f"n_electrons {n_e[r]} is not a positive whole number")
     n_e = np.where(bad_n, np.nan, n_e)
 
-    e, e_lo, e_hi, basis = _potentials(out, settings, ref, notes)
+    e, e_lo, e_hi, basis, pot_flag = _potentials(out, settings, ref, notes, role, n_e)
     e, e_lo, e_hi = (np.where(bad_role, np.nan, a) for a in (e, e_lo, e_hi))
 
     # concentration, capped by solubility
@@ -305,14 +334,26 @@ def cell_metrics(
             f"[cell] rate_order = {order} but the predictions hold '{other_col}', not "
             f"'{rate_col}'; set rate_order = {3 - order}"
         )
-    logk = _numeric(out, rate_col).to_numpy()
-    logk_lo = _numeric(out, rate_col + col.PI_LOW_SUFFIX).to_numpy()
-    logk_hi = _numeric(out, rate_col + col.PI_HIGH_SUFFIX).to_numpy()
+    # rule: a measured or fitted rate (rate_source) wins over the model's prediction, with
+    # the measurement's or fit's own 95 % interval where known; the prediction stays in its column
+    target = col.LOG10_K_FIRST if order == 1 else col.LOG10_K_SECOND
+    own = _numeric(out, target).to_numpy()
+    own_lo = _numeric(out, target + col.CI_LOW_SUFFIX).to_numpy()
+    own_hi = _numeric(out, target + col.CI_HIGH_SUFFIX).to_numpy()
+    source = (out[col.RATE_SOURCE].fillna("").astype(str).to_numpy() if col.RATE_SOURCE in out.columns
+              else np.full(n, "", dtype=object))
+    use_own = np.isfinite(own)
+    pred = _numeric(out, rate_col).to_numpy()
+    logk = np.where(use_own, own, pred)
+    logk_lo = np.where(use_own, own_lo, _numeric(out, rate_col + col.PI_LOW_SUFFIX).to_numpy())
+    logk_hi = np.where(use_own, own_hi, _numeric(out, rate_col + col.PI_HIGH_SUFFIX).to_numpy())
+    rate_basis = np.where(use_own, np.where(source == "fitted", "fitted", "measured"),
+                          np.where(np.isfinite(pred), "predicted", ""))
     no_pi = np.isfinite(logk) & ~(np.isfinite(logk_lo) & np.isfinite(logk_hi))
     for r in np.flatnonzero(~np.isfinite(logk)):
-        notes[r].append(f"no predicted rate ('{rate_col}'): no half-life")
+        notes[r].append(f"no measured, fitted or predicted rate ('{rate_col}'): no half-life")
     for r in np.flatnonzero(no_pi):
-        notes[r].append("predicted rate without interval: half-life taken as exact")
+        notes[r].append(f"{rate_basis[r]} rate without interval: half-life taken as exact")
     logk_lo = np.where(no_pi, logk, np.minimum(logk_lo, logk))
     logk_hi = np.where(no_pi, logk, np.maximum(logk_hi, logk))
     t = half_life_h(logk, order, conc)
@@ -324,12 +365,18 @@ def cell_metrics(
         out[col.CALIBRATION_STATUS].astype(str).str.lower()
         if col.CALIBRATION_STATUS in out.columns else pd.Series("", index=out.index)
     )
-    extrap = (domain == "extrapolating").to_numpy() | status.str.contains("outside").to_numpy()
+    # a measured or fitted rate does not extrapolate the model; a measured potential needs no calibration
+    extrap = (((domain == "extrapolating").to_numpy() & ~use_own)
+              | (status.str.contains("outside").to_numpy() & (basis != "measured")))
     measured = truthy(out[col.MEASURED]) if col.MEASURED in out.columns else pd.Series(False, index=out.index)
 
     out[col.ROLE] = role
     out[col.N_ELECTRONS] = n_e
     out[col.POTENTIAL_BASIS] = basis
+    out[col.potential_used(ref)] = e
+    out[col.potential_used_low(ref)] = e_lo
+    out[col.potential_used_high(ref)] = e_hi
+    out[col.POTENTIAL_FLAG] = pot_flag
     out[col.PARTNER_ID] = partner
     out[col.CONCENTRATION] = conc
     out[col.CONCENTRATION_CAPPED] = capped
@@ -342,6 +389,7 @@ def cell_metrics(
     out[col.ENERGY_DENSITY_LOW] = w_lo
     out[col.ENERGY_DENSITY_HIGH] = w_hi
     out[col.RATE_ORDER] = order
+    out[col.RATE_BASIS] = rate_basis
     out[col.HALF_LIFE] = t
     out[col.HALF_LIFE_LOW] = t_lo
     out[col.HALF_LIFE_HIGH] = t_hi

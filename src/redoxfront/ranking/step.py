@@ -20,6 +20,7 @@ from redoxfront import columns as col
 from redoxfront.campaign import bounded
 from redoxfront.errors import DataError, SettingsError
 from redoxfront.outputs import read_table, write_csv, write_json
+from redoxfront.units import reference_label
 from redoxfront.ranking.objectives import OBJECTIVES
 from redoxfront.ranking.pareto import (
     crowding_distance,
@@ -248,6 +249,9 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
         "n_ranked": int(result.table[col.PARETO_RANK].notna().sum()),
         "n_first_front": int((result.table[col.PARETO_RANK] == 1).sum()),
         "potential_basis_counts": {str(k): int(v) for k, v in basis.items() if k},
+        "rate_basis_counts": {str(k): int(v) for k, v in result.table[col.RATE_BASIS].value_counts().items() if k}
+        if col.RATE_BASIS in result.table else {},
+        "reference_label": reference_label(campaign.compute.reference, campaign.compute.user_reference_name),
         "cell": dataclasses.asdict(cell_settings),
         "ranking": {**dataclasses.asdict(settings), "objectives": list(settings.objectives)},
         "reference": campaign.compute.reference,

@@ -192,6 +192,8 @@ def _problems_section(res: Path) -> str:
 def render_report(campaign: Campaign) -> str:
     """The report as one HTML string (figures embedded, every string escaped)."""
     res = campaign.results_dir
+    from redoxfront.units import reference_label
+
     ref = campaign.compute.reference
     rs = section_from_mapping(ReportSettings, campaign.section("report"), "report")
     banner = f'<p class="banner">{_e(rs.note)}</p>' if rs.note else ""
@@ -201,7 +203,7 @@ def render_report(campaign: Campaign) -> str:
     n_all = 0 if desc is None else len(desc)
     s = campaign.compute
     method = (f"{s.method} (tblite) with ALPB({s.solvent}); {s.role}, {s.n_electrons} electron(s); "
-              f"potentials vs {ref}; {s.conformers.refine_lowest} conformers refined of "
+              f"potentials vs {reference_label(ref, s.user_reference_name)}; {s.conformers.refine_lowest} conformers refined of "
               f"{s.conformers.n_generate} generated; seed {s.seed}. Software: {_software()}; "
               f"settings hash {s.result_hash()} (the key of the stored states).")
     safety = "".join(f"<li>{_e(t)}</li>" for t in SAFETY_NOTES)

@@ -23,7 +23,7 @@ from redoxfront.campaign import Campaign, bounded, section_from_mapping
 from redoxfront.errors import DataError, InputError
 from redoxfront.outputs import read_table, write_csv, write_json
 from redoxfront.statistics.regression import OLSModel
-from redoxfront.units import convert_potential, reference_key
+from redoxfront.units import convert_potential, reference_key, reference_label
 
 STATUS_CALIBRATED = "calibrated"
 STATUS_OUTSIDE = "calibrated (outside calibration range)"
@@ -117,12 +117,17 @@ class CalibrationReport:
         }
 
 
-def read_measured_potentials(path: Path, reference: str) -> tuple[pd.DataFrame, list[str]]:
+def read_measured_potentials(path: Path, reference: str, compute_solvent: str | None = None,
+                             user_reference: tuple[str, float | None] | None = None,
+                             ) -> tuple[pd.DataFrame, list[str]]:
     """Read measured potentials; convert to ``reference``; average duplicate ids.
 
-    Returns columns ``id``, ``measured_v`` (V vs reference) and ``class`` if given,
-    plus notes on skipped rows. Rows with an unknown reference or non-numeric value
-    are skipped with a note (a bad row never stops the batch).
+    Returns columns ``id``, ``measured_v`` (V vs reference), ``uncertainty_v`` (half-width
+    of the measurement's 95 % interval, V, where the optional column gives it) and ``class``
+    if given, plus notes on skipped rows. Rows with an unknown reference or non-numeric
+    value are skipped with a note (a bad row never stops the batch). Rows measured in
+    another solvent than ``compute_solvent`` (engine keyword) get a note; an Fc+/Fc
+    reference in water gets a warning.
     """
     if not path.exists():
         raise InputError("file not found; check [inputs] measured_potentials", source=str(path))
@@ -146,28 +151,73 @@ def read_measured_potentials(path: Path, reference: str) -> tuple[pd.DataFrame, 
             notes.append(f"{path.name} row {i + 2} ({rid}): potential_v {r['potential_v']!r} is not a number; skipped")
             continue
         try:
-            v = convert_potential(v, str(r["reference"]), reference)
+            ref_text = str(r["reference"]).strip()
+            user_name, user_v = user_reference or ("", None)
+            if user_name and ref_text.lower() == user_name.strip().lower():
+                ref_text = "user"
+            v = convert_potential(v, ref_text, reference, user_v)
         except Exception as exc:  # unknown electrode name
             notes.append(f"{path.name} row {i + 2} ({rid}): {exc}; skipped")
             continue
         row = {"id": rid, "measured_v": v}
+        if "uncertainty_v" in df.columns:
+            try:
+                u = float(r["uncertainty_v"])
+            except (TypeError, ValueError):
+                u = float("nan")
+            row["uncertainty_v"] = abs(u) if math.isfinite(u) else float("nan")
         if "class" in df.columns:
             row["class"] = str(r["class"])
         rows.append(row)
     solvents = sorted(set(df["solvent"].astype(str).str.strip().str.lower()))
+    notes += solvent_notes(df, compute_solvent, path.name)
     if len(solvents) > 1:
         notes.append(
             f"measured potentials come from several solvents ({', '.join(solvents)}); "
             "reference conversions assume one solvent, calibrate per solvent if values differ"
         )
-    out = pd.DataFrame(rows, columns=["id", "measured_v"] + (["class"] if "class" in df.columns else []))
+    extra = (["uncertainty_v"] if "uncertainty_v" in df.columns else []) + (["class"] if "class" in df.columns else [])
+    out = pd.DataFrame(rows, columns=["id", "measured_v"] + extra)
     if out["id"].duplicated().any():
         notes.append("some ids were measured more than once; their values were averaged")
         agg: dict[str, str] = {"measured_v": "mean"}
+        if "uncertainty_v" in out.columns:
+            agg["uncertainty_v"] = "max"
         if "class" in out.columns:
             agg["class"] = "first"
         out = out.groupby("id", as_index=False, sort=False).agg(agg)
     return out, notes
+
+
+def solvent_notes(df: pd.DataFrame, compute_solvent: str | None, file_name: str) -> list[str]:
+    """Notes on measured rows whose solvent differs from the compute's, and a warning for
+    an Fc+/Fc reference in water (ferrocene is nearly insoluble there and the acetonitrile
+    offset used for conversion does not apply; Connelly & Geiger, Chem. Rev. 1996, 96, 877,
+    give it for acetonitrile)."""
+    from redoxfront.campaign import SOLVENT_NAMES
+    from redoxfront.units import REFERENCE_ALIASES
+
+    notes: list[str] = []
+    names = df["solvent"].astype(str).str.strip()
+    keys = names.str.lower().map(lambda n: SOLVENT_NAMES.get(n, n))
+    if compute_solvent:
+        other = sorted(set(names[keys != compute_solvent]))
+        if other:
+            notes.append(
+                f"{file_name}: potentials measured in {', '.join(other)} while the compute uses "
+                f"{compute_solvent}: solvation and the reference's junction potential differ between "
+                "solvents, so these values calibrate against a different scale; prefer measurements "
+                "in the compute's solvent or calibrate per solvent (class column)"
+            )
+    refs = df["reference"].astype(str).str.strip().str.lower().map(lambda n: REFERENCE_ALIASES.get(n, n))
+    fc_water = df.loc[(keys == "water") & (refs == "fc"), "id"].astype(str).tolist()
+    if fc_water:
+        notes.append(
+            f"warning: {file_name}: Fc+/Fc reference in water for {', '.join(fc_water[:10])}: ferrocene "
+            "is nearly insoluble in water and its offset to SHE used here is the acetonitrile value; "
+            "report aqueous potentials against SHE, SCE or Ag/AgCl"
+        )
+    return notes
 
 
 def calibrate_table(
@@ -203,6 +253,8 @@ def calibrate_table(
     usable = ok & raw.notna()
     meas_col = columns.potential_measured(ref)
     t[meas_col] = t[columns.ID].map(measured.set_index("id")["measured_v"])
+    if "uncertainty_v" in measured.columns:
+        t[columns.POTENTIAL_MEASURED_UNCERTAINTY] = t[columns.ID].map(measured.set_index("id")["uncertainty_v"])
     unknown = sorted(set(measured["id"]) - set(t[columns.ID]))
     if unknown:
         notes.append(f"measured id(s) not in the descriptor table, ignored: {', '.join(unknown[:20])}")
@@ -260,10 +312,13 @@ def calibrate_campaign(campaign: Campaign) -> pd.DataFrame:
                        required=[columns.ID])
     measured, notes = (None, [])
     if campaign.inputs.measured_potentials:
-        measured, notes = read_measured_potentials(campaign.path(campaign.inputs.measured_potentials), ref)
+        measured, notes = read_measured_potentials(
+            campaign.path(campaign.inputs.measured_potentials), ref, campaign.compute.solvent,
+            (campaign.compute.user_reference_name, campaign.compute.user_reference_v_vs_fc))
     out, report = calibrate_table(table, measured, ref, settings)
     write_csv(out, path)
     d = report.to_dict()
+    d["reference_label"] = reference_label(ref, campaign.compute.user_reference_name)
     d["notes"] = notes + d["notes"]
     write_json(campaign.results_dir / "calibration.json", d)
     out.attrs["calibration"] = d

@@ -48,8 +48,11 @@ def calibration_parity(
     if labels is not None and len(labels) <= 30:
         for xi, yi, t in zip(x, y, labels):
             ax.annotate(str(t), (xi, yi), fontsize=6, xytext=(2, 2), textcoords="offset points")
-    ax.set_xlabel(f"computed potential (uncalibrated), V vs {reference}")
-    ax.set_ylabel(f"measured potential, V vs {reference}")
+    from redoxfront.units import reference_label
+
+    label = reference_label(reference)
+    ax.set_xlabel(f"computed potential (uncalibrated), V vs {label}")
+    ax.set_ylabel(f"measured potential, V vs {label}")
     ax.legend(fontsize=LEGEND_SIZE)
     return _save(fig, path)
 

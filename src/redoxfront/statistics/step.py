@@ -158,7 +158,9 @@ def _resolve_potential(campaign: Any, table: pd.DataFrame) -> tuple[pd.DataFrame
     if cal in table.columns and pd.to_numeric(table[cal], errors="coerce").notna().any():
         return table, cal, []
     if campaign.inputs.measured_potentials:
-        measured, notes = read_measured_potentials(campaign.path(campaign.inputs.measured_potentials), ref)
+        measured, notes = read_measured_potentials(
+            campaign.path(campaign.inputs.measured_potentials), ref, campaign.compute.solvent,
+            (campaign.compute.user_reference_name, campaign.compute.user_reference_v_vs_fc))
         settings = sfm(CalibrationSettings, campaign.section("calibration"), "calibration")
         table, _ = calibrate_table(table, measured, ref, settings)
         return table, cal, notes + ["potentials calibrated on the fly (run the calibrate command to store them)"]
