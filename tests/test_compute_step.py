@@ -14,7 +14,7 @@ import pytest
 
 from redoxfront import columns as C
 from redoxfront.campaign import ComputeSettings, ConformerSettings, load_campaign
-from redoxfront.candidates.structures import parse_candidate
+from redoxfront.candidates.structures import candidate_states, parse_candidate
 from redoxfront.compute.status import compute_status
 from redoxfront.compute.step import (
     CONFORMER_ENTRY,
@@ -243,7 +243,9 @@ def test_charged_state_starts_from_the_vertical_point_already_computed(tmp_path)
     settings = ComputeSettings(role="catholyte", conformers=ConformerSettings(n_generate=4, refine_lowest=2))
     cand = parse_candidate({"id": "dmb", "smiles": "COc1ccc(OC)cc1"}, 2, settings)
     whole = compute_candidate(cand, settings, str(tmp_path / "a.sqlite"))
-    resumed = compute_candidate(cand, settings, None, {"discharged": whole.payloads["discharged"]})
+    neutral = candidate_states(cand)[0].key  # the discharged state is stored as what it is
+    assert neutral == "charge=+0;unpaired=0"
+    resumed = compute_candidate(cand, settings, None, {neutral: whole.payloads[neutral]})
     a = whole.states.states["charged"].conformers
     b = resumed.states.states["charged"].conformers
     assert len(a) == len(b) == 2
@@ -295,7 +297,7 @@ def test_a_state_interrupted_between_conformers_keeps_the_finished_ones(tmp_path
     key = settings.result_hash()
     with Store(camp.store_path) as s:
         s.put(cand.main_smiles, CONFORMER_ENTRY, conformer_key(settings), whole.payloads[CONFORMER_ENTRY])
-        s.put(cand.main_smiles, "discharged:conformer:0", key, first.to_json())
+        s.put(cand.main_smiles, "charge=+0;unpaired=0:conformer:0", key, first.to_json())
     assert compute_status(camp).partial == ["m0"]
     resumed = compute_candidate(cand, settings, str(camp.store_path))
     assert resumed.states.states["discharged"].conformers[0].energy_eh == first.energy_eh  # read back
@@ -305,6 +307,6 @@ def test_a_state_interrupted_between_conformers_keeps_the_finished_ones(tmp_path
         a, b = whole.states.states[name].conformers, resumed.states.states[name].conformers
         assert [c.energy_eh for c in b] == pytest.approx([c.energy_eh for c in a], abs=1e-7)
     with Store(camp.store_path) as s:
-        assert s.get(cand.main_smiles, "discharged:conformer:0", key) is None
+        assert s.get(cand.main_smiles, "charge=+0;unpaired=0:conformer:0", key) is None
         assert s.count(key) == 2  # the two whole states, nothing else under this key
     assert compute_status(camp).done == ["m0"]

@@ -23,6 +23,7 @@ from redoxfront.engine.records import (
     STATE_CHARGED,
     STATE_DISCHARGED,
     STATE_INTERMEDIATE,
+    state_key,
 )
 from redoxfront.engine.xtb import SUPPORTED_ELEMENTS_MAX_Z
 from redoxfront.errors import InputError
@@ -54,11 +55,23 @@ class Candidate:
 
 @dataclass(frozen=True)
 class RedoxState:
-    """Charge and unpaired electrons of one redox state."""
+    """Charge and unpaired electrons of one redox state.
+
+    ``name`` is the part the state plays for this candidate (discharged, charged, ...);
+    ``key`` is what the state is (charge, unpaired electrons, protonation form), the
+    name it is stored under, shared by every row of the same molecule that needs it.
+    """
 
     name: str
     charge: int
     uhf: int
+    protonation: str = ""
+    """Protonation form; empty for the non-aqueous couples (room for proton-coupled ones)."""
+
+    @property
+    def key(self) -> str:
+        """The store's name of this state (:func:`redoxfront.engine.records.state_key`)."""
+        return state_key(self.charge, self.uhf, self.protonation)
 
 
 def _clean(value: Any) -> str:

@@ -13,7 +13,7 @@ from pathlib import Path
 
 from redoxfront.campaign import Campaign
 from redoxfront.candidates.structures import candidate_states, read_candidates
-from redoxfront.compute.step import checkpoint_name
+from redoxfront.compute.step import checkpoint_name, failure_text
 from redoxfront.compute.store import Store
 from redoxfront.errors import InputError
 
@@ -44,11 +44,12 @@ def compute_status(campaign: Campaign, *, candidates_path: str | Path | None = N
     with Store(campaign.store_path) as store:
         for c in candidates:
             plan = candidate_states(c)
-            found = [store.state_status(c.main_smiles, s.name, key_hash) for s in plan]
-            failure = next((reason for stored, reason in found if reason), None)
+            found = [store.state_status(c.main_smiles, s.key, key_hash) for s in plan]
+            failure = next((failure_text(s, {"failed": reason})
+                            for s, (_, reason) in zip(plan, found) if reason), None)
             stored = sum(f[0] for f in found)
             # a first state interrupted between conformers also counts as partly done
-            stored += store.state_status(c.main_smiles, checkpoint_name(plan[0].name, 0), key_hash)[0]
+            stored += store.state_status(c.main_smiles, checkpoint_name(plan[0].key, 0), key_hash)[0]
             if failure:
                 status.failed[c.id] = failure
             elif stored == len(plan):

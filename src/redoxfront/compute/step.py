@@ -12,7 +12,7 @@ from __future__ import annotations
 import time
 from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
-from typing import Any
+from typing import Any, Callable
 
 import numpy as np
 import pandas as pd
@@ -37,12 +37,13 @@ from redoxfront.engine.optimizer import optimize_geometry
 from redoxfront.engine.potentials import potential_v, reduction_free_energy_ev
 from redoxfront.engine.records import (
     POSITION_DECIMALS,
+    STATE_DISCHARGED,
     CandidateStates,
     ConformerResult,
     StateResult,
 )
 from redoxfront.engine.xtb import Engine, EngineResult, make_engine
-from redoxfront.errors import EngineError, InputError
+from redoxfront.errors import DataError, EngineError, InputError
 from redoxfront.outputs import write_csv
 from redoxfront.units import HARTREE_EV
 
@@ -97,6 +98,7 @@ class _Checkpoints:
     store: Store | None
     smiles: str
     state: str
+    """The state's store name (:attr:`RedoxState.key`)."""
     key: str
 
     def _name(self, i: int) -> str:
@@ -213,13 +215,90 @@ def _conformer_starts(
     return starts, int(ensemble["conformers_embedded"]), seconds
 
 
+def vertical_entry(state: RedoxState, other: RedoxState) -> str:
+    """Store name of the vertical energies of ``other`` at the conformers of ``state``, kept
+    apart when they were computed after the state itself (for a row of another role)."""
+    return f"{state.key}:vertical:{other.key}"
+
+
+def failure_text(state: RedoxState, payload: dict[str, Any]) -> str:
+    """What a stored failure says, in this candidate's words (the store holds only the reason)."""
+    return f"{state.name} state: {payload['failed']}"
+
+
+def _stored_payload(sr: StateResult, plan: list[RedoxState]) -> dict[str, Any]:
+    """A state as stored: named by what it is, its vertical energies by what their states are."""
+    key_of = {s.name: s.key for s in plan}
+    payload = sr.to_json()
+    payload["state"] = key_of[sr.state]
+    for conf in payload["conformers"]:
+        conf["vertical_energies_eh"] = {key_of[n]: e for n, e in conf["vertical_energies_eh"].items()}
+    return payload
+
+
+def _plan_state(payload: dict[str, Any], state: RedoxState, plan: list[RedoxState], smiles: str) -> StateResult:
+    """A stored state in this candidate's words: the part it plays, vertical energies of its
+    neighbours by their parts. Refuses a payload that is not the state asked for."""
+    if (int(payload.get("charge", 0)), int(payload.get("uhf", -1))) != (state.charge, state.uhf) \
+            or payload.get("state") != state.key:
+        raise DataError(
+            f"store entry {state.key} of {smiles} holds charge {payload.get('charge')}, "
+            f"{payload.get('uhf')} unpaired electrons (state {payload.get('state')!r}); the store "
+            "is damaged: move it away to compute afresh")
+    name_of = {s.key: s.name for s in plan}
+    sr = StateResult.from_json(payload)
+    confs = tuple(replace(c, vertical_energies_eh={name_of[k]: e for k, e in c.vertical_energies_eh.items()
+                                                   if k in name_of}) for c in sr.conformers)
+    return replace(sr, state=state.name, conformers=confs)
+
+
+def _complete_verticals(
+    engine: Engine,
+    numbers: np.ndarray,
+    sr: StateResult,
+    state: RedoxState,
+    neighbours: list[RedoxState],
+    settings: ComputeSettings,
+    lookup: Callable[[str], dict | None],
+    keep: Callable[[str, dict], dict],
+) -> tuple[StateResult, list[tuple[RedoxState, np.ndarray, EngineResult]]]:
+    """Add the vertical energies of neighbours a stored state was computed without.
+
+    A state stored for a row of another role (the neutral molecule of an anolyte, read by a
+    catholyte row) lacks the energies of this row's neighbour at its geometries. They are
+    read from their own store entry (:func:`vertical_entry`) or computed as single points at
+    the stored geometries, exactly as the state's own optimisation would have. Returns the
+    state and the new points (they start the neighbour's optimisation).
+    """
+    points = []
+    confs = list(sr.conformers)
+    for other in neighbours:
+        if all(other.name in c.vertical_energies_eh for c in confs):
+            continue
+        entry = vertical_entry(state, other)
+        found = lookup(entry)
+        if found is None:
+            energies = []
+            for c in confs:
+                res = engine.compute(numbers, c.positions_angstrom, other.charge, other.uhf,
+                                     spin_polarized=settings.spin_polarized and other.uhf > 0)
+                points.append((other, c.positions_angstrom, res))
+                energies.append(res.energy_eh)
+            found = keep(entry, {"energies_eh": energies})
+        confs = [replace(c, vertical_energies_eh={**c.vertical_energies_eh, other.name: float(e)})
+                 for c, e in zip(confs, found["energies_eh"])]
+    return replace(sr, conformers=tuple(confs)), points
+
+
 def compute_candidate(
     candidate: Candidate, settings: ComputeSettings, store_path: str | None, stored: dict[str, dict] | None = None
 ) -> CandidateOutcome:
     """Compute (or read back) every redox state of one candidate.
 
     ``store_path``: write each state to this store as soon as it is done (local runs).
-    ``stored``: payloads already known for this candidate (read by the caller).
+    ``stored``: payloads already known for this candidate (read by the caller), by store name.
+    States are stored under what they are (:attr:`RedoxState.key`), so rows of the same
+    molecule in different roles share the states they have in common and no other.
     """
     t_start = time.perf_counter()
     conformer_s = 0.0
@@ -229,47 +308,69 @@ def compute_candidate(
     engine = make_engine(settings.engine, settings.method, settings.solvent)
     payloads: dict[str, dict[str, Any]] = {}
     embedded = 0
-    mol_h = Chem.AddHs(Chem.MolFromSmiles(candidate.main_smiles))
+    smiles = candidate.main_smiles
+    mol_h = Chem.AddHs(Chem.MolFromSmiles(smiles))
     numbers = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
     plan = redox_states(mol_h, candidate.role, candidate.n_electrons)
+    i0 = next(i for i, s in enumerate(plan) if s.name == STATE_DISCHARGED)
     results: dict[str, StateResult] = {}
-    verticals: list = []  # the last computed state's vertical points: the next state starts there
+    points: list = []  # vertical points computed so far: a neighbour's optimisation starts there
     failure = None
+
+    def lookup(name: str) -> dict | None:
+        found = known.get(name)
+        return store.get(smiles, name, key_hash) if found is None and store is not None else found
+
+    def keep(name: str, payload: dict) -> dict:
+        if store is not None:
+            payload = store.put(smiles, name, key_hash, payload)
+        payloads[name] = payload
+        return payload
+
     try:
-        for k, state in enumerate(plan):
-            payload = known.get(state.name)
-            if payload is None and store is not None:
-                payload = store.get(candidate.main_smiles, state.name, key_hash)
+        # the discharged state first, then outwards along the chain, each from its neighbour
+        # nearer the discharged state
+        for k in sorted(range(len(plan)), key=lambda i: (abs(i - i0), -i)):
+            state = plan[k]
+            neighbours = [plan[j] for j in (k + 1, k - 1) if 0 <= j < len(plan)]
+            payload = lookup(state.key)
             if payload is None:
-                neighbours = [plan[j] for j in (k + 1, k - 1) if 0 <= j < len(plan)]
                 try:
-                    if k == 0:
+                    if k == i0:
                         starts, embedded, conformer_s = _conformer_starts(
                             candidate, mol_h, settings, store, known, payloads)
                     else:
-                        starts = [c.positions_angstrom for c in results[plan[k - 1].name].conformers]
-                    checkpoints = _Checkpoints(store, candidate.main_smiles, state.name, key_hash)
-                    sr, verticals = _optimise_state(engine, numbers, starts, state, neighbours, settings,
-                                                    verticals, checkpoints)
-                    payload = sr.to_json()
+                        parent = plan[k + 1 if k < i0 else k - 1]
+                        starts = [c.positions_angstrom for c in results[parent.name].conformers]
+                    checkpoints = _Checkpoints(store, smiles, state.key, key_hash)
+                    sr, new_points = _optimise_state(engine, numbers, starts, state, neighbours, settings,
+                                                     points, checkpoints)
+                    points += new_points
+                    payload = _stored_payload(sr, plan)
                     payload["conformers_embedded"] = embedded
                 except (EngineError, InputError) as exc:
-                    payload = {"failed": f"{state.name} state: {getattr(exc, 'reason', exc)}"}
-                if store is not None:
-                    payload = store.put(candidate.main_smiles, state.name, key_hash, payload)
-                    _Checkpoints(store, candidate.main_smiles, state.name, key_hash).clear(
-                        settings.conformers.refine_lowest)  # the state is whole (or failed) now
-                payloads[state.name] = payload
+                    payload = {"failed": str(getattr(exc, "reason", exc))}
+                payload = keep(state.key, payload)
+                if store is not None:  # the state is whole (or failed) now
+                    _Checkpoints(store, smiles, state.key, key_hash).clear(settings.conformers.refine_lowest)
             if "failed" in payload:
-                failure = payload["failed"]
+                failure = failure_text(state, payload)
                 break
-            if k == 0:
+            if k == i0:
                 embedded = int(payload.get("conformers_embedded", 0))
-            results[state.name] = StateResult.from_json(payload)
+            sr = _plan_state(payload, state, plan, smiles)
+            try:
+                sr, new_points = _complete_verticals(engine, numbers, sr, state, neighbours, settings,
+                                                     lookup, keep)
+            except (EngineError, InputError) as exc:
+                failure = f"{state.name} state: vertical energies: {getattr(exc, 'reason', exc)}"
+                break
+            points += new_points
+            results[state.name] = sr
     finally:
         if store is not None:
             store.close()
-    states = None if failure else CandidateStates(candidate.id, candidate.main_smiles, results)
+    states = None if failure else CandidateStates(candidate.id, smiles, {s.name: results[s.name] for s in plan})
     return CandidateOutcome(candidate, states, failure, embedded, engine.stats.calls,
                             engine.stats.seconds, payloads, task_seconds=time.perf_counter() - t_start,
                             conformer_seconds=conformer_s)
@@ -392,11 +493,12 @@ def compute_candidates(
 
 
 def _stored_states(store: Store, candidate: Candidate, settings: ComputeSettings) -> dict[str, dict]:
-    """The candidate's payloads already in the store: redox states by name, and its conformer
-    ensemble under :data:`CONFORMER_ENTRY`."""
+    """The candidate's payloads already in the store, by store name: its redox states, the
+    vertical energies kept apart for them, and its conformer ensemble under :data:`CONFORMER_ENTRY`."""
     key_hash = settings.result_hash()
-    found = {s.name: p for s in candidate_states(candidate)
-             if (p := store.get(candidate.main_smiles, s.name, key_hash)) is not None}
+    plan = candidate_states(candidate)
+    names = [s.key for s in plan] + [vertical_entry(a, b) for a in plan for b in plan if a != b]
+    found = {n: p for n in names if (p := store.get(candidate.main_smiles, n, key_hash)) is not None}
     ensemble = store.get(candidate.main_smiles, CONFORMER_ENTRY, conformer_key(settings))
     if ensemble is not None:
         found[CONFORMER_ENTRY] = ensemble
@@ -497,6 +599,7 @@ def _compute_campaign(campaign: Campaign, candidates_path: str | Path | None, ou
 
 
 __all__ = [
-    "CONFORMER_ENTRY", "CandidateOutcome", "ComputeReport", "checkpoint_name", "conformer_key", "candidate_row", "compute_campaign", "compute_candidate",
+    "CONFORMER_ENTRY", "CandidateOutcome", "ComputeReport", "checkpoint_name", "failure_text",
+    "vertical_entry", "conformer_key", "candidate_row", "compute_campaign", "compute_candidate",
     "compute_candidates", "candidate_task",
 ]

@@ -1,6 +1,15 @@
 """The SQLite store: every computed redox state, keyed by molecule, state and settings.
 
-Keys are (canonical main-fragment SMILES, state name, settings hash); a candidate's RDKit
+Keys are (canonical main-fragment SMILES, state, settings hash). The state is named by what
+it is, never by the part it plays: total charge and unpaired electrons
+(:func:`redoxfront.engine.records.state_key`, e.g. ``charge=-1;unpaired=1``, with room for a
+protonation form), so the same molecule as an anolyte and as a catholyte shares its neutral
+state and nothing else. Stores written before this rule (schema 1, states named
+``discharged``/``intermediate``/``charged`` relative to a role) are migrated when opened:
+each optimised state is renamed from the charge and spin it holds, its vertical energies
+(named relative to the role that computed them) are dropped and recomputed when needed,
+stored failures and unfinished conformers are dropped. A store of a newer schema is refused.
+A candidate's RDKit
 conformer ensemble is stored the same way under the name ``conformer_ensemble`` and a key
 of the conformer settings alone (:func:`redoxfront.compute.step.conformer_key`). The hash
 covers every setting that changes energies or geometries
@@ -19,7 +28,13 @@ import time
 from pathlib import Path
 from typing import Any
 
+from redoxfront.engine.records import state_key
 from redoxfront.errors import RedoxfrontError
+
+SCHEMA_VERSION = 2
+"""Schema of the store (SQLite ``user_version``): 2 = states named by charge and spin."""
+_ROLE_NAMES = ("discharged", "intermediate", "charged")
+"""State names of schema 1, relative to the role of the row that computed them."""
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS states (
@@ -48,6 +63,7 @@ class Store:
                 con.execute("PRAGMA synchronous=NORMAL")
                 con.execute(_SCHEMA)
                 self._con = con
+                self.migrated = self._migrate()
                 break
             except sqlite3.OperationalError as exc:
                 # another process is creating the file or switching it to WAL right now:
@@ -61,6 +77,45 @@ class Store:
             except sqlite3.DatabaseError as exc:
                 raise RedoxfrontError(
                     f"cannot open store {self.path}: {exc}; move the file away to start afresh") from exc
+
+    def _migrate(self) -> int:
+        """Bring a schema-1 store to schema 2 in one transaction; returns the states renamed."""
+        con = self._con
+        version = con.execute("PRAGMA user_version").fetchone()[0]
+        if version == SCHEMA_VERSION:
+            return 0
+        if version > SCHEMA_VERSION:
+            raise RedoxfrontError(
+                f"store {self.path} has schema {version}, newer than this redoxfront reads "
+                f"({SCHEMA_VERSION}); use the newer redoxfront or move the file away to start afresh")
+        renamed = 0
+        con.execute("BEGIN IMMEDIATE")  # one migrating process; the others wait, then see version 2
+        try:
+            if con.execute("PRAGMA user_version").fetchone()[0] == 0:
+                marks = ",".join("?" * len(_ROLE_NAMES))
+                rows = con.execute(
+                    f"SELECT smiles, state, settings_hash, payload, created_unix FROM states "
+                    f"WHERE state IN ({marks}) OR state LIKE '%:conformer:%'", _ROLE_NAMES).fetchall()
+                for smiles, state, key, text, created in rows:
+                    con.execute("DELETE FROM states WHERE smiles=? AND state=? AND settings_hash=?",
+                                (smiles, state, key))
+                    if state not in _ROLE_NAMES:  # a conformer of an unfinished state: name unknown
+                        continue
+                    payload = json.loads(text)
+                    if "failed" in payload or "charge" not in payload or "uhf" not in payload:
+                        continue  # a failure names no charge: computed again when needed
+                    new = state_key(payload["charge"], payload["uhf"])
+                    payload["state"] = new
+                    for conf in payload.get("conformers", []):
+                        conf["vertical_energies_eh"] = {}  # named by a role: recomputed when needed
+                    renamed += con.execute("INSERT OR IGNORE INTO states VALUES (?, ?, ?, ?, ?)",
+                                           (smiles, new, key, json.dumps(payload), created)).rowcount
+            con.execute(f"PRAGMA user_version = {SCHEMA_VERSION}")
+            con.execute("COMMIT")
+        except BaseException:
+            con.execute("ROLLBACK")
+            raise
+        return renamed
 
     def get(self, smiles: str, state: str, settings_hash: str) -> dict[str, Any] | None:
         """The stored payload, or None."""

@@ -19,6 +19,20 @@ POSITION_DECIMALS = 6
 """Stored geometries are rounded to 1e-6 Angstrom (far below any geometric effect)."""
 
 
+def state_key(charge: int, unpaired: int, protonation: str = "") -> str:
+    """The store's name of a redox state: what the state is, never the role it plays.
+
+    Total charge and unpaired electrons (multiplicity - 1) of the molecule whose canonical
+    SMILES is the other half of the key, e.g. ``charge=+1;unpaired=1`` for a radical
+    cation of a neutral molecule. ``protonation`` is left empty by the non-aqueous couples;
+    a protonation form (for proton-coupled couples) will be appended as
+    ``;protonation=<form>``, so the keys of today's states stay as they are. A state
+    named this way means the same thing to an anolyte, a catholyte and a bipolar row.
+    """
+    key = f"charge={int(charge):+d};unpaired={int(unpaired)}"
+    return f"{key};protonation={protonation}" if protonation else key
+
+
 @dataclass(frozen=True)
 class ConformerResult:
     """One optimised conformer of one redox state.
