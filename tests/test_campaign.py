@@ -79,3 +79,62 @@ def test_solvents_by_chemical_name_and_proxies_for_missing_ones():
         ComputeSettings(solvent="propylene carbonate")
     with pytest.raises(SettingsError, match=r"closest parametrised solvents by dielectric constant are 'aniline' \(epsilon 6.9\), 'thf'"):
         _load({"compute": {"solvent": "1,2-dimethoxyethane"}})
+
+
+@pytest.mark.parametrize("key, value", [
+    ("candidates", "../shared/candidates.csv"),
+    ("measured_potentials", "/etc/passwd"),
+    ("measured_rates", "inputs/../../rates.csv"),
+    ("cycling", "inputs/linked"),  # a link inside the campaign that points out of it
+])
+def test_an_input_path_outside_the_campaign_is_refused(tmp_path, key, value):
+    camp = tmp_path / "camp"
+    (camp / "inputs").mkdir(parents=True)
+    (tmp_path / "shared").mkdir()
+    (camp / "inputs" / "linked").symlink_to(tmp_path / "shared")
+    (camp / "campaign.toml").write_text(f'[inputs]\n{key} = "{value}"\n')
+    # common practice, no source: a settings file must not reach files its folder does not hold
+    with pytest.raises(SettingsError, match=rf"\[inputs\] {key} = '{value}' resolves to .*outside the campaign "
+                                            r"folder.*read_outside_campaign = true"):
+        load_campaign(camp)
+    (camp / "campaign.toml").write_text(f'[inputs]\n{key} = "{value}"\nread_outside_campaign = true\n')
+    assert load_campaign(camp).inputs.read_outside_campaign  # the user said so: allowed
+
+
+def test_library_output_outside_the_campaign_is_refused_even_with_the_opt_in(tmp_path):
+    from redoxfront.candidates.library import library_for_campaign
+
+    camp = tmp_path / "camp"
+    camp.mkdir()
+    (camp / "campaign.toml").write_text(
+        '[inputs]\nread_outside_campaign = true\n'
+        '[library]\nscaffold = "COc1ccc([*:1])cc1"\noutput = "../x.csv"\n[library.substituents]\n1 = ["C"]\n')
+    with pytest.raises(SettingsError, match=r"\[library\] output = '../x.csv' resolves to .*outside the campaign"):
+        library_for_campaign(load_campaign(camp), progress=False)
+    assert not (tmp_path / "x.csv").exists()
+
+
+def test_writes_do_not_follow_a_linked_results_folder(tmp_path):
+    from click.testing import CliRunner
+
+    from redoxfront.cli import main
+
+    camp = tmp_path / "camp"
+    camp.mkdir()
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    (camp / "campaign.toml").write_text("")
+    (camp / "results").symlink_to(elsewhere)
+    (elsewhere / "descriptors.csv").write_text("id,status\na,ok\n")
+    r = CliRunner().invoke(main, ["report", str(camp)])
+    assert r.exit_code == 2 and "outside the campaign folder" in r.output and "remove the link" in r.output
+    assert sorted(p.name for p in elsewhere.iterdir()) == ["descriptors.csv"]  # nothing written there
+    (camp / "results").unlink()
+    (camp / "results" / "figures").parent.mkdir()
+    (camp / "results" / "figures").symlink_to(elsewhere)
+    from redoxfront.errors import DataError
+    from redoxfront.outputs import write_text
+
+    with pytest.raises(DataError, match="is a link to .*remove the link"):
+        write_text(camp / "results" / "figures" / "front.svg", "<svg/>")
+    assert sorted(p.name for p in elsewhere.iterdir()) == ["descriptors.csv"]

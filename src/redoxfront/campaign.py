@@ -300,12 +300,18 @@ class ComputeSettings:
 
 @dataclass(frozen=True)
 class InputSettings:
-    """Paths of the campaign's input files, relative to the campaign folder."""
+    """Paths of the campaign's input files, relative to the campaign folder.
+
+    Every path in the campaign file must resolve (links followed) inside the campaign folder;
+    ``read_outside_campaign = true`` lets input files be read from elsewhere (shared measured
+    data, say). Files the tool writes never leave the campaign folder, whatever this says.
+    """
 
     candidates: str = "inputs/candidates.csv"
     measured_potentials: str | None = None
     measured_rates: str | None = None
     cycling: str | None = None
+    read_outside_campaign: bool = False
 
 
 @dataclass(frozen=True)
@@ -325,19 +331,51 @@ class Campaign:
 
     @property
     def results_dir(self) -> Path:
-        return self.folder / "results"
+        """``results/`` of the campaign; refused when it is a link to somewhere else."""
+        res = self.folder / "results"
+        if res.is_symlink() or (res.exists() and not _inside(res, self.folder)):
+            raise SettingsError(
+                f"{res} is a link to {res.resolve()}, outside the campaign folder; results are written "
+                "only inside the campaign: remove the link (or replace it with a folder)")
+        return res
 
     @property
     def store_path(self) -> Path:
         return self.folder / "cache.sqlite"
 
-    def path(self, relative: str) -> Path:
-        """Resolve a path given in the campaign file against the campaign folder."""
+    def path(self, relative: str, setting: str = "a path") -> Path:
+        """Resolve an input path given in the campaign file against the campaign folder.
+
+        Refused (SettingsError naming ``setting``) when it resolves outside the campaign folder,
+        links followed, unless ``[inputs] read_outside_campaign = true``.
+        """
         p = Path(relative)
-        return p if p.is_absolute() else self.folder / p
+        p = p if p.is_absolute() else self.folder / p
+        if not self.inputs.read_outside_campaign and not _inside(p, self.folder):
+            raise SettingsError(
+                f"{setting} = '{relative}' resolves to {p.resolve()}, outside the campaign folder "
+                f"{self.folder.resolve()}; copy the file into the campaign, or set "
+                "[inputs] read_outside_campaign = true to read shared inputs from elsewhere")
+        return p
+
+    def output_path(self, relative: str, setting: str = "an output path") -> Path:
+        """Resolve a path the tool writes to; it must stay inside the campaign folder (no opt-out)."""
+        p = Path(relative)
+        p = p if p.is_absolute() else self.folder / p
+        if not _inside(p, self.folder):
+            raise SettingsError(
+                f"{setting} = '{relative}' resolves to {p.resolve()}, outside the campaign folder "
+                f"{self.folder.resolve()}; files are written only inside the campaign: give a path "
+                "such as 'inputs/library.csv'")
+        return p
 
     def section(self, name: str) -> Mapping[str, Any]:
         return self.sections.get(name, {})
+
+
+def _inside(path: Path, folder: Path) -> bool:
+    """True when ``path`` (links followed, as far as it exists) lies within ``folder``."""
+    return path.resolve().is_relative_to(folder.resolve())
 
 
 OWNED_SECTIONS: tuple[str, ...] = (
@@ -373,4 +411,9 @@ def campaign_from_mapping(data: Mapping[str, Any], folder: Path) -> Campaign:
     reference_key(compute.reference)
     inputs = section_from_mapping(InputSettings, data.get("inputs"), "inputs")
     sections = {k: dict(data[k]) for k in OWNED_SECTIONS if k in data}
-    return Campaign(folder=folder, name=name, compute=compute, inputs=inputs, sections=sections)
+    campaign = Campaign(folder=folder, name=name, compute=compute, inputs=inputs, sections=sections)
+    for key in ("candidates", "measured_potentials", "measured_rates", "cycling"):
+        value = getattr(inputs, key)
+        if value:  # refused here, before any step runs, when outside the campaign
+            campaign.path(value, f"[inputs] {key}")
+    return campaign

@@ -4,7 +4,8 @@ Every file the tool writes goes to a temporary file in the same folder, is flush
 disk and then renamed over the target (``os.replace``, atomic on POSIX within one file
 system): a crash leaves either the old file or the new one, never a truncated one. The
 rename replaces a symlink at the target instead of writing through it, so a link planted
-in ``results/`` cannot redirect a write. New files get the user's normal permissions
+in ``results/`` cannot redirect a write, and a folder that is a link (``results/figures``
+pointing elsewhere) is refused. New files get the user's normal permissions
 (0666 minus the umask), not the 0600 of a private temporary file.
 
 Reading: :func:`read_table` is the one way a CSV table (a result file or a user's input
@@ -45,6 +46,9 @@ def replacing(path: str | Path) -> Iterator[Path]:
     from the suffix (matplotlib, RDKit) still do.
     """
     target = Path(path)
+    if target.parent.is_symlink():  # results/figures -> /elsewhere would carry the write out
+        raise DataError(f"{target.parent} is a link to {target.parent.resolve()}; result files are "
+                        "written only into real folders of the campaign: remove the link")
     target.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp_name = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=f".tmp{target.suffix}")
     os.close(fd)

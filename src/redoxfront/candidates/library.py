@@ -207,12 +207,12 @@ def library_for_campaign(campaign: Campaign, *, progress: bool = True) -> tuple[
     settings = section_from_mapping(LibrarySettings, campaign.section("library"), "library")
     if settings.substituents_file:
         settings = replace(settings, substituents=_with_file(settings.substituents,
-                                                             campaign.path(settings.substituents_file)))
+                                                             campaign.path(settings.substituents_file, "[library] substituents_file")))
     if not settings.scaffold:
         raise SettingsError("[library] scaffold is missing; e.g. scaffold = \"COc1cc([*:1])c(OC)cc1[*:2]\"")
     table, problems = build_library(settings, progress=progress)
     combos = math.prod(len(v) for v in settings.substituents.values())
-    out = campaign.path(settings.output)
+    out = campaign.output_path(settings.output, "[library] output")
     out.parent.mkdir(parents=True, exist_ok=True)
     write_csv(table, out)
     return out, combos, len(table), problems

@@ -34,7 +34,7 @@ class ComputeStatus:
 def compute_status(campaign: Campaign, *, candidates_path: str | Path | None = None) -> ComputeStatus:
     """Count done, failed, partly done and pending candidates under the current settings."""
     settings = campaign.compute
-    path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates)
+    path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates, "[inputs] candidates")
     candidates, problems = read_candidates(path, settings)
     status = ComputeStatus([], {}, [], [], problems)
     if not campaign.store_path.exists():

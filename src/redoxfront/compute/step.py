@@ -572,7 +572,7 @@ def _compute_campaign(campaign: Campaign, candidates_path: str | Path | None, ou
                       workers: int | None, dask_address: str | None, progress: bool,
                       describe: bool) -> ComputeReport:
     settings = campaign.compute
-    path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates)
+    path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates, "[inputs] candidates")
     candidates, problems = read_candidates(path, settings)
     sections = {"sites": campaign.section("sites"), "descriptors": campaign.section("descriptors")}
     outcomes, wall = compute_candidates(candidates, settings, campaign.store_path, workers=workers,

@@ -298,6 +298,6 @@ def fade_campaign(campaign: Campaign, input_path: str | Path | None = None,
         if campaign.inputs.cycling is None:
             raise SettingsError("no cycling data given: pass --input FILE_OR_FOLDER or set "
                                 "[inputs] cycling = 'inputs/cycling' in the campaign")
-        input_path = campaign.path(campaign.inputs.cycling)
+        input_path = campaign.path(campaign.inputs.cycling, "[inputs] cycling")
     out = Path(out_dir) if out_dir is not None else campaign.results_dir
     return fit_fade_folder(input_path, settings, out, progress=progress)

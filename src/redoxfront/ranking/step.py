@@ -223,7 +223,7 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
         if target in table.columns:
             flag |= pd.to_numeric(table[target], errors="coerce").notna()
     if campaign.inputs.measured_rates:
-        rates_path = campaign.path(campaign.inputs.measured_rates)
+        rates_path = campaign.path(campaign.inputs.measured_rates, "[inputs] measured_rates")
         if rates_path.exists():
             rates = read_table(rates_path, remedy="fix the file or [inputs] measured_rates")
             if col.ID in rates.columns:

@@ -313,7 +313,8 @@ def calibrate_campaign(campaign: Campaign) -> pd.DataFrame:
     measured, notes = (None, [])
     if campaign.inputs.measured_potentials:
         measured, notes = read_measured_potentials(
-            campaign.path(campaign.inputs.measured_potentials), ref, campaign.compute.solvent,
+            campaign.path(campaign.inputs.measured_potentials, "[inputs] measured_potentials"), ref,
+            campaign.compute.solvent,
             (campaign.compute.user_reference_name, campaign.compute.user_reference_v_vs_fc))
     out, report = calibrate_table(table, measured, ref, settings)
     write_csv(out, path)

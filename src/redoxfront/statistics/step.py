@@ -138,7 +138,7 @@ def _rate_sources(campaign: Any, st: "ModelSettings", target: str) -> "RateSourc
 
     fitted = campaign.results_dir / "rates.csv"
     measured_rel = st.rates or campaign.inputs.measured_rates
-    measured = campaign.path(measured_rel) if measured_rel else None
+    measured = campaign.path(measured_rel, "[model] rates / [inputs] measured_rates") if measured_rel else None
     if measured is not None and measured.resolve() == fitted.resolve():
         measured = None
     return collect_rates(measured, fitted, target)
@@ -159,7 +159,8 @@ def _resolve_potential(campaign: Any, table: pd.DataFrame) -> tuple[pd.DataFrame
         return table, cal, []
     if campaign.inputs.measured_potentials:
         measured, notes = read_measured_potentials(
-            campaign.path(campaign.inputs.measured_potentials), ref, campaign.compute.solvent,
+            campaign.path(campaign.inputs.measured_potentials, "[inputs] measured_potentials"), ref,
+            campaign.compute.solvent,
             (campaign.compute.user_reference_name, campaign.compute.user_reference_v_vs_fc))
         settings = sfm(CalibrationSettings, campaign.section("calibration"), "calibration")
         table, _ = calibrate_table(table, measured, ref, settings)
