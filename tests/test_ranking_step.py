@@ -108,3 +108,17 @@ def test_knee_label_offset_stays_inside_the_axes():
     assert _label_offset(ax, 9.5, 5.0) == (-14, 18, "right", "bottom")
     assert _label_offset(ax, 1.0, 9.5) == (12, -18, "left", "top")
     plt.close(fig)
+
+
+def test_best_partner_with_one_role_stops_with_the_reason_and_setting(tmp_path):
+    """Issue 11: best-partner pairing with catholytes only ranked nothing and exited 0."""
+    from redoxfront.campaign import load_campaign
+    from redoxfront.cli import main
+
+    _campaign(tmp_path, cell='counter = "best-partner"\n')
+    with pytest.raises(SettingsError, match=r"every candidate is a catholyte \(no anolyte to pair with\).*"
+                                            r"set \[cell\] counter = 'potential' and counter_potential_v"):
+        R.rank_campaign(load_campaign(tmp_path), progress=False)
+    res = CliRunner().invoke(main, ["rank", str(tmp_path)])
+    assert res.exit_code != 0  # common practice, no source: a failed command exits non-zero
+    assert "counter = 'potential'" in res.output and "Traceback" not in res.output

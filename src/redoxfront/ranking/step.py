@@ -231,6 +231,20 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
     # read_csv and merge leave one block per column; consolidate once before adding columns
     table = table.copy()
     table[col.MEASURED] = flag.to_numpy(bool)
+    if cell_settings.counter == "best-partner":
+        roles = table[col.ROLE].astype(str).str.strip().str.lower() if col.ROLE in table.columns \
+            else pd.Series(campaign.compute.role, index=table.index)
+        present = set(roles) & {"anolyte", "catholyte"}
+        if len(present) == 1:
+            only = present.pop()
+            other = "catholyte" if only == "anolyte" else "anolyte"
+            raise SettingsError(
+                f"[cell] counter = 'best-partner' pairs each candidate with one of the other role, but "
+                f"every candidate is a{'n' if only == 'anolyte' else ''} {only} (no {other} to pair with), so "
+                "nothing can be ranked; set [cell] counter = 'potential' and counter_potential_v "
+                "(V vs the campaign reference) for the counter electrode, or add candidates with "
+                f"role = '{other}'"
+            )
     metrics = cell_metrics(
         table, cell_settings, campaign.compute.reference,
         default_role=campaign.compute.role, default_n_electrons=campaign.compute.n_electrons,
