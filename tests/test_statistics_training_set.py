@@ -132,3 +132,32 @@ def test_cli_choose_training(tmp_path):
     assert r.output.count("dmb-") == 3
     r = CliRunner().invoke(main, ["choose-training", str(tmp_path), "--count", "3", "--made", "nope"])
     assert r.exit_code == 2 and "forced id(s) nope not in the table" in r.output
+
+
+def test_default_columns_are_descriptors_only_and_errors_name_the_cause():
+    """Issue 11: without --columns the design spanned wall time, gradient calls and an empty
+    counterion column; the error then blamed 'constant' columns."""
+    rng = np.random.default_rng(3)
+    n = 12
+    t = pd.DataFrame({
+        "id": [f"c{i}" for i in range(n)], "status": "ok", "smiles": "C",
+        "sterimol_b1_site_mean": rng.normal(size=n), "potential_uncalibrated_v_vs_fc": rng.normal(size=n),
+        "wall_time_s": rng.uniform(1, 9, n), "gradient_calls": rng.integers(10, 90, n),
+        "engine_time_s": rng.uniform(1, 9, n), "heavy_atoms": rng.integers(8, 20, n),
+        "counterions": np.nan, "n_conformers_used_charged": 2, "solubility_mol_per_l": rng.uniform(0.1, 1, n),
+        "price_eur_per_g": rng.uniform(1, 9, n),
+    })
+    from redoxfront.statistics.training_set import default_design_columns
+
+    # common practice, no source: only properties of the molecule span its descriptor space
+    assert default_design_columns(t, input_columns=["price_eur_per_g"]) == [
+        "sterimol_b1_site_mean", "potential_uncalibrated_v_vs_fc"]
+    d = design_training_set(t, 4, input_columns=["price_eur_per_g"])
+    assert d.columns == ("sterimol_b1_site_mean", "potential_uncalibrated_v_vs_fc") and d.skipped_rows == ()
+    t["sterimol_b5_site_mean"] = np.nan
+    t.loc[0, "sterimol_b5_site_mean"] = 1.0
+    with pytest.raises(DataError, match=r"only 1 of 12 computed candidates have a value in every chosen column \(4 picks asked for\); the emptiest: "
+                                        r"'sterimol_b5_site_mean' \(92% empty\)"):
+        design_training_set(t, 4, input_columns=["price_eur_per_g"])
+    with pytest.raises(DataError, match=r"every chosen column \(heavy_atoms\) is constant over the 12 usable"):
+        design_training_set(t.assign(heavy_atoms=10), 4, columns_=["heavy_atoms"])

@@ -148,6 +148,28 @@ RATE_NOTE = "rate_note"
 MODEL_SET = "model_set"
 """'train', 'test' or '' (candidate without a measured rate)."""
 
+# ---- bookkeeping columns of the descriptor table (not descriptors) ----------------
+BOOKKEEPING_COLUMNS: tuple[str, ...] = (
+    ID, SMILES, CANONICAL_SMILES, STATUS, ROLE, N_ELECTRONS, MOLAR_MASS, "counterions",
+    "counterion_note", "heavy_atoms", "charge_discharged", "charge_charged",
+    "multiplicity_discharged", "multiplicity_charged", "conformers_embedded",
+    "conformers_refined", "gradient_calls", "optimisations_converged", "wall_time_s",
+    "engine_time_s", "from_store", "descriptor_notes", SOLUBILITY, MEASURED, CALIBRATION_STATUS,
+    CALIBRATION_GROUP, POTENTIAL_MEASURED_UNCERTAINTY, "set", "class",
+)
+"""Columns of ``descriptors.csv`` that describe the run or the input, not the molecule:
+never spanned by a training-set design nor searched as model terms."""
+BOOKKEEPING_PREFIXES: tuple[str, ...] = (
+    "n_conformers_used_", "potential_measured", "potential_calibrated", "log10_k", "calibration",
+    SUBSTITUENT_PREFIX, "leverage", "domain",
+)
+
+
+def is_bookkeeping(name: str) -> bool:
+    """True for a column that is not a molecular descriptor (see :data:`BOOKKEEPING_COLUMNS`)."""
+    return name in BOOKKEEPING_COLUMNS or name.startswith(BOOKKEEPING_PREFIXES)
+
+
 # ---- descriptors (redoxfront.descriptors) ----------------------------------------
 DESCRIPTOR_NOTES = "descriptor_notes"
 """Per-row reasons why some descriptor values are empty ('; '-separated)."""

@@ -128,7 +128,7 @@ def _non_descriptor(col: str) -> bool:
         columns.MEASURED, columns.RATE_ORDER, columns.LEVERAGE, columns.LEVERAGE_THRESHOLD,
         columns.STANDARDISED_RESIDUAL, "set", "class",
     }
-    return col in fixed or col.startswith(("potential", "log10_k", "calibration"))
+    return col in fixed or col.startswith(("potential", "log10_k", "calibration")) or columns.is_bookkeeping(col)
 
 
 def _rate_sources(campaign: Any, st: "ModelSettings", target: str) -> "RateSources":

@@ -108,15 +108,18 @@ def kennard_stone_split(X: np.ndarray, test_fraction: float) -> tuple[np.ndarray
     return train, test
 
 
-def default_design_columns(table: pd.DataFrame) -> list[str]:
-    """Numeric descriptor columns of a descriptor table (not id, status or model outputs)."""
-    skip_prefix = ("log10_k", "potential_calibrated", columns.LEVERAGE, columns.DOMAIN)
+def default_design_columns(table: pd.DataFrame, input_columns: Sequence[str] = ()) -> list[str]:
+    """Numeric descriptor columns of a descriptor table: not the bookkeeping columns
+    (:func:`redoxfront.columns.is_bookkeeping`: ids, status, wall time, gradient calls,
+    counterions, calibration and model outputs ...) nor the user's own input columns."""
+    user = {str(c) for c in input_columns}
     out = []
     for c in table.columns:
-        if c in (columns.ID, columns.STATUS, columns.N_ELECTRONS) or str(c).startswith(skip_prefix):
+        name = str(c)
+        if columns.is_bookkeeping(name) or name in user:
             continue
-        if pd.api.types.is_numeric_dtype(table[c]):
-            out.append(str(c))
+        if pd.api.types.is_numeric_dtype(table[c]) and not pd.api.types.is_bool_dtype(table[c]):
+            out.append(name)
     return out
 
 
@@ -139,8 +142,12 @@ def design_training_set(
     forced_in: Sequence[str] = (),
     forced_out: Sequence[str] = (),
     columns_: Sequence[str] | None = None,
+    input_columns: Sequence[str] = (),
 ) -> TrainingDesign:
     """Choose ``k`` candidate ids by Kennard-Stone over z-scored descriptor columns.
+
+    Without ``columns_``: every numeric descriptor column (``input_columns``, the user's
+    own candidate-file columns, and bookkeeping columns are left out).
 
     Only rows with status 'ok' (if a status column exists) and no missing value in
     the chosen columns take part; the others are listed in ``skipped_rows``.
@@ -154,7 +161,7 @@ def design_training_set(
     if t[columns.ID].duplicated().any():
         dup = t.loc[t[columns.ID].duplicated(), columns.ID].iloc[0]
         raise DataError(f"id '{dup}' appears more than once; ids must be unique")
-    cols = list(columns_) if columns_ else default_design_columns(t)
+    cols = list(columns_) if columns_ else default_design_columns(t, input_columns)
     missing = [c for c in cols if c not in t.columns]
     if missing:
         raise DataError(f"descriptor column(s) {', '.join(missing)} not in the table; check the names")
@@ -174,13 +181,31 @@ def design_training_set(
             f"forced-in id(s) {', '.join(bad_forced)} have failed status or missing descriptors; "
             "fix them or drop them from the forced-in list"
         )
+    if ok.sum() < max(2, k):
+        status_ok = t[columns.STATUS].astype(str).eq("ok").to_numpy() if columns.STATUS in t.columns \
+            else np.ones(len(t), dtype=bool)
+        if status_ok.sum() < max(2, k):
+            raise DataError(
+                f"only {int(status_ok.sum())} candidate(s) were computed successfully (status 'ok') and "
+                f"{k} picks were asked for; fix the failed computations or ask for fewer"
+            )
+        empty = np.mean(~np.isfinite(vals[status_ok]), axis=0)
+        worst = [f"'{c}' ({e:.0%} empty)" for c, e in sorted(zip(cols, empty), key=lambda ce: -ce[1]) if e > 0][:5]
+        raise DataError(
+            f"only {int(ok.sum())} of {int(status_ok.sum())} computed candidates have a value in every "
+            f"chosen column ({k} picks asked for); the emptiest: " + ", ".join(worst)
+            + "; pass --columns without them"
+        )
     skipped_rows = tuple(t.loc[~ok, columns.ID])
     vals, ids = vals[ok], t.loc[ok, columns.ID].tolist()
     spread = vals.std(axis=0) > 0 if len(vals) else np.zeros(len(cols), dtype=bool)
     use = [c for c, s in zip(cols, spread) if s]
     skipped_cols = tuple(c for c, s in zip(cols, spread) if not s)
     if not use:
-        raise DataError("every descriptor column is constant over the usable rows; nothing to span")
+        raise DataError(
+            f"every chosen column ({', '.join(cols[:5])}{' ...' if len(cols) > 5 else ''}) is constant over the "
+            f"{len(ids)} usable row(s); nothing to span; choose columns that differ between candidates"
+        )
     pos = {i: n for n, i in enumerate(ids)}
     picks = kennard_stone(
         standardise(vals[:, spread]),
@@ -207,6 +232,18 @@ def choose_training_set(
     return list(design_training_set(table, k, forced_in, forced_out, columns).picks)
 
 
+def _candidate_columns(path: Path) -> list[str]:
+    """The user's own columns of the candidate file (besides id and smiles); [] if unreadable."""
+    import csv
+
+    try:
+        with path.open(newline="", encoding="utf-8-sig") as fh:
+            header = next(csv.reader(fh), [])
+    except (OSError, UnicodeDecodeError):
+        return []
+    return [h for h in header if h.strip().lower() not in (columns.ID, columns.SMILES, columns.ROLE, columns.N_ELECTRONS)]
+
+
 def choose_training_for_campaign(
     campaign_path: str | Path,
     k: int,
@@ -221,7 +258,8 @@ def choose_training_for_campaign(
     path = campaign.results_dir / "descriptors.csv"
     table = read_table(path, remedy=f"regenerate it with `redoxfront compute {campaign.folder}`",
                        required=[columns.ID])
-    design = design_training_set(table, k, forced_in, forced_out, columns_)
+    inputs = _candidate_columns(campaign.path(campaign.inputs.candidates))
+    design = design_training_set(table, k, forced_in, forced_out, columns_, input_columns=inputs)
     out = design.to_frame()
     out["forced_in"] = out[columns.ID].isin(set(forced_in))
     write_csv(out, campaign.results_dir / "training_picks.csv")
