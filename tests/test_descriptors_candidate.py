@@ -165,13 +165,7 @@ def test_descriptor_settings_are_validated() -> None:
     assert DescriptorSettings().buried_volume_sphere_radius_angstrom == 3.5  # common setting
 
 
-@pytest.mark.parametrize("how", ["min", "max", "mean"])
-def test_several_places_summarise_the_values_of_each_place(how: str) -> None:
-    # the two methoxy groups next to a t-Bu are not equivalent; with several_places the site
-    # reports, per conformer, the min / max / mean over both places. Checked against the same
-    # two places named one by one with atom-map numbers: the ensemble minimum of per-conformer
-    # minima is the smaller of the two minima (likewise for max), and the Boltzmann mean is
-    # linear, so the mean over places of the means equals the mean of the per-conformer means
+def _two_methoxy_places(how: str):
     mol, cs = _states()
     places = sorted({m[:2] for m in mol.GetSubstructMatches(Chem.MolFromSmarts("c-O[CH3]"))})
     assert len(places) == 2
@@ -183,17 +177,42 @@ def test_several_places_summarise_the_values_of_each_place(how: str) -> None:
         "place_a": {"map_numbers": [1, 2]},
         "place_b": {"map_numbers": [3, 4]},
     }
-    row = descriptors_for_candidate(mol, cs, sites, {"energy_window_kcal_per_mol": 3.0})
-    assert f"site methoxy: {how} over 2 non-equivalent places" in row["descriptor_notes"]
-    checks = [("buried_volume_percent", None), ("sasa_angstrom2", None), ("sterimol_b1_angstrom", None),
-              ("sterimol_l_angstrom", None), ("ring_clearance_angstrom", None), ("spin_density", None),
-              ("partial_charge_e", "charged")]
-    for q, state in checks:
-        def col(site: str, stat: str) -> float:
-            return row[columns.descriptor_column(q, site, state, stat)]
-        a, b = col("place_a", how), col("place_b", how)
-        expected = {"min": min(a, b), "max": max(a, b), "mean": 0.5 * (a + b)}[how]
-        assert col("methoxy", how) == pytest.approx(expected, rel=1e-9, abs=1e-12), q
-    # the two places really differ (otherwise the check above proves little)
-    assert row[columns.descriptor_column("buried_volume_percent", "place_a", None, "mean")] != pytest.approx(
-        row[columns.descriptor_column("buried_volume_percent", "place_b", None, "mean")], abs=0.5)
+    return places, descriptors_for_candidate(mol, cs, sites, {"energy_window_kcal_per_mol": 3.0})
+
+
+_SITE_CHECKS = [("buried_volume_percent", None), ("sasa_angstrom2", None), ("sterimol_b1_angstrom", None),
+                ("sterimol_l_angstrom", None), ("ring_clearance_angstrom", None), ("spin_density", None),
+                ("partial_charge_e", "charged")]
+
+
+@pytest.mark.parametrize("how", ["min", "max"])
+def test_several_places_min_max_take_every_descriptor_from_one_place(how: str) -> None:
+    """Issue 11: 'min' picks ONE place per site (the least buried by Boltzmann-mean percent
+    buried volume; 'max' the most buried) and every descriptor of the site comes from it,
+    checked against the same two places named one by one with atom-map numbers."""
+    places, row = _two_methoxy_places(how)
+
+    def col(q: str, site: str, state: str | None, stat: str) -> float:
+        return row[columns.descriptor_column(q, site, state, stat)]
+
+    va, vb = col("buried_volume_percent", "place_a", None, "mean"), col("buried_volume_percent", "place_b", None, "mean")
+    assert va != pytest.approx(vb, abs=0.5)  # the two places really differ
+    chosen = "place_a" if (va < vb) == (how == "min") else "place_b"
+    for q, state in _SITE_CHECKS:
+        for stat in ("mean", "min", "max"):
+            # common practice, no source: every descriptor of one site from one and the same place
+            assert col(q, "methoxy", state, stat) == pytest.approx(col(q, chosen, state, stat), rel=1e-9, abs=1e-12), (q, stat)
+    place = places[0] if chosen == "place_a" else places[1]
+    assert (f"site methoxy: 2 non-equivalent places; several_places = '{how}' took the "
+            f"{'least' if how == 'min' else 'most'} buried one (atoms {place[0] + 1}, {place[1] + 1}") in row["descriptor_notes"]
+
+
+def test_several_places_mean_averages_each_place() -> None:
+    # the Boltzmann mean is linear, so the mean over places of the means equals the mean of
+    # the per-conformer means (definition)
+    _places, row = _two_methoxy_places("mean")
+    assert "site methoxy: mean over 2 non-equivalent places" in row["descriptor_notes"]
+    for q, state in _SITE_CHECKS:
+        def col(site: str) -> float:
+            return row[columns.descriptor_column(q, site, state, "mean")]
+        assert col("methoxy") == pytest.approx(0.5 * (col("place_a") + col("place_b")), rel=1e-9, abs=1e-12), q

@@ -16,6 +16,8 @@ Settings are the campaign's ``[descriptors]`` section (:class:`DescriptorSetting
 
 from __future__ import annotations
 
+import dataclasses
+
 from dataclasses import dataclass, field
 from typing import Any, Callable, Mapping
 
@@ -281,8 +283,8 @@ def _steric(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSetting
         if not m.found:
             continue
         label = f"site {spec.name}"
-        if len(m.places) > 1:
-            row.note(f"{label}: {m.summary} over {len(m.places)} non-equivalent places")
+        if len(m.places) > 1 and m.summary == "mean":
+            row.note(f"{label}: mean over {len(m.places)} non-equivalent places")
 
         def atom_fn(centre: int) -> Callable[[int], tuple[float, ...]]:
             include = np.ones(len(heavy), bool) if ds.buried_volume_include_hydrogens else heavy.copy()
@@ -296,6 +298,9 @@ def _steric(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSetting
                 return bv, float(sasa(k)[centre])
             return fn
 
+        if len(m.places) > 1 and m.summary in ("min", "max"):
+            m = _one_place(m, [atom_fn(p[0]) for p in m.places], w, row, label)
+            matches[spec.name] = m  # the electronic descriptors of the site use the same place
         row.per_conformer(("buried_volume_percent", "sasa_angstrom2"), geo, w,
                           _over_places([atom_fn(p[0]) for p in m.places], m.summary), spec.name, label)
         if not m.is_bond:
@@ -337,6 +342,28 @@ def _steric(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSetting
 
 
 _SUMMARIES: dict[str, Callable[..., np.ndarray]] = {"min": np.min, "max": np.max, "mean": np.mean}
+
+
+def _one_place(m: SiteMatch, buried: list[Callable[[int], tuple[float, ...]]], w: EnsembleWeights,
+               row: _Row, label: str) -> SiteMatch:
+    """``several_places = "min"`` / ``"max"``: ONE place per site, the least (most) buried by the
+    Boltzmann-weighted percent buried volume of the ensemble; every descriptor of the site is
+    then taken at that place (ties: the first place in atom order)."""
+    means = []
+    for fn in buried:
+        v = np.array([fn(int(k))[0] for k in w.used], dtype=float)
+        means.append(float(np.sum(w.weights * v)) if np.all(np.isfinite(v)) else np.nan)
+    arr = np.array(means)
+    if not np.isfinite(arr).any():
+        return m
+    pick = int(np.nanargmin(arr) if m.summary == "min" else np.nanargmax(arr))
+    place = m.places[pick]
+    row.note(
+        f"{label}: {len(m.places)} non-equivalent places; several_places = '{m.summary}' took the "
+        f"{'least' if m.summary == 'min' else 'most'} buried one (atoms {', '.join(str(a + 1) for a in place)}, "
+        f"{arr[pick]:.1f} % buried volume) for every descriptor of the site"
+    )
+    return dataclasses.replace(m, atoms=place, places=(place,))
 
 
 def _over_places(fns: list[Callable[[int], tuple[float, ...]]], how: str) -> Callable[[int], tuple[float, ...]]:

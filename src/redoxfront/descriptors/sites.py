@@ -19,10 +19,12 @@ side, then the first atom of the substituent). Matches that are symmetry-equival
 reason and empty values for that site, never an error that stops the batch. When a
 SMARTS matches several places that are not equivalent (two different methoxy groups of
 an unsymmetrical ring), ``several_places`` decides: ``"refuse"`` (the default: empty
-values and a reason), or ``"min"``, ``"max"``, ``"mean"``: every descriptor of the site
-is computed at each place and that summary of them is reported, per conformer, with a
-note that says how many places it covers. ``"min"`` of buried volume or Sterimol B1 is
-the least protected place, usually the one that matters for decomposition.
+values and a reason); ``"min"`` / ``"max"``: ONE place per site, the least (most) buried
+one by the Boltzmann-weighted percent buried volume of the ensemble, and every descriptor
+of the site (buried volume, surface, Sterimol, clearance, charges, spin) is taken at that
+same place, with a note naming its atoms; ``"mean"``: every descriptor is computed at each
+place and averaged, per conformer. The least buried place is the least protected one,
+usually the one that matters for decomposition.
 """
 
 from __future__ import annotations
