@@ -56,8 +56,31 @@ def test_counterions_split_and_kept_for_mass():
     assert c.counterions == ("[Br-]",)
     # molar mass includes bromide: C12H20NO2+ 210.29 + Br 79.904 (IUPAC standard atomic weights)
     assert c.molar_mass_g_per_mol == pytest.approx(290.197, abs=0.02)
-    c2 = parse_candidate({"id": "s", "smiles": "COc1ccc(OC)cc1", "counterion": "[Na+]"}, 2, S)
-    assert c2.counterions == ("[Na+]",) and c2.main_smiles == "COc1ccc(OC)cc1"
+    c2 = parse_candidate({"id": "s", "smiles": "C[N+](C)(C)CCOc1ccc(OC)cc1", "counterion": "[Br-]"}, 2, S)
+    assert c2.counterions == ("[Br-]",) and c2.molar_mass_g_per_mol == pytest.approx(c.molar_mass_g_per_mol)
+    assert c2.counterion_note == ""
+
+
+def test_charged_rows_balanced_with_the_campaign_counterion_or_rejected():
+    """Issue 11: a dication written with one counterion (or none) was accepted and its molar
+    mass came out 32-93 % wrong. Same rule as the library builder."""
+    dication = "C[N+](C)(C)CCOc1ccc(OCC[N+](C)(C)C)cc1"
+    with pytest.raises(InputError, match=r"net charge \+1: the salt is not balanced.*\[compute\] counterion"):
+        parse_candidate({"id": "d", "smiles": dication + ".[Cl-]"}, 2, S)
+    with pytest.raises(InputError, match=r"net charge \+2"):
+        parse_candidate({"id": "d", "smiles": dication}, 2, S)
+    s_cl = ComputeSettings(counterion="[Cl-]")
+    one = parse_candidate({"id": "d", "smiles": dication + ".[Cl-]"}, 2, s_cl)
+    none = parse_candidate({"id": "d", "smiles": dication}, 2, s_cl)
+    # C16H30N2O2 2+ 282.42 + 2 Cl 70.90 = 353.33 g/mol (IUPAC standard atomic weights)
+    assert one.molar_mass_g_per_mol == pytest.approx(353.33, abs=0.05)
+    assert none.molar_mass_g_per_mol == pytest.approx(353.33, abs=0.05)
+    assert none.counterions == ("[Cl-]", "[Cl-]")
+    assert none.counterion_note == "net charge +2 balanced with 2 x [Cl-] ([compute] counterion)"
+    assert one.counterion_note == "net charge +1 balanced with 1 x [Cl-] ([compute] counterion)"
+    # a counterion of the same sign cannot balance (library builder's rule)
+    with pytest.raises(InputError, match=r"cannot be balanced by the counterion '\[Na\+\]'"):
+        parse_candidate({"id": "d", "smiles": dication}, 2, ComputeSettings(counterion="[Na+]"))
 
 
 def test_redox_states_charge_and_spin():

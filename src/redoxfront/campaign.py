@@ -256,6 +256,10 @@ class ComputeSettings:
     user_reference_v_vs_fc: float | None = None
     """Stated potential of the user-defined reference ('user') vs Fc+/Fc, V."""
     absolute_she: str = field(default="trasatti", metadata=choice(*ABSOLUTE_SHE_V))
+    counterion: str = ""
+    """SMILES of one counterion (e.g. "[Cl-]", "F[B-](F)(F)F") that balances candidates given
+    with a net charge (a dication written with one counterion or none): as many as make the
+    salt neutral are added, and the row says so. Unset: such rows are rejected with the reason."""
     ipea_shift_ev: float = 4.8455
     spin_polarized: bool = False
     seed: int = field(default=20261201, metadata=bounded(0, 2**31 - 1))

@@ -51,6 +51,8 @@ class Candidate:
     row: int
     extra: dict[str, Any] = field(default_factory=dict)
     """User columns, passed through unchanged."""
+    counterion_note: str = ""
+    """What was done to balance a charged input (empty when it was neutral as given)."""
 
 
 @dataclass(frozen=True)
@@ -111,6 +113,7 @@ def parse_candidate(
             f"element(s) {', '.join(bad)} outside the GFN-xTB parametrisation (H to Rn)",
             row=label, field="smiles", source=source,
         )
+    mol, counterion_note = _balance_charge(mol, settings.counterion, label, source)
     frags = sorted(Chem.GetMolFrags(mol, asMols=True), key=lambda m: (-m.GetNumHeavyAtoms(), Chem.MolToSmiles(m)))
     main = frags[0]
     heavy = main.GetNumHeavyAtoms()
@@ -141,7 +144,38 @@ def parse_candidate(
         heavy_atoms=heavy,
         row=row,
         extra=extra,
+        counterion_note=counterion_note,
     )
+
+
+def _balance_charge(mol: Chem.Mol, counterion: str, label: str, source: str | None) -> tuple[Chem.Mol, str]:
+    """Make a charged input neutral with the campaign's counterion, the rule of the library
+    builder (:func:`redoxfront.candidates.library.balancing_counterions`): returns the salt and
+    a note saying what was added; without a counterion setting the row is rejected."""
+    from redoxfront.candidates.library import balancing_counterions
+
+    net = Chem.GetFormalCharge(mol)
+    if net == 0:
+        return mol, ""
+    if not counterion:
+        raise InputError(
+            f"net charge {net:+d}: the salt is not balanced, so its molar mass and mAh/g would be "
+            "wrong; write the counterions into the SMILES or the 'counterion' column, or set "
+            "[compute] counterion (e.g. \"[Cl-]\") to balance such rows",
+            row=label, field="smiles", source=source,
+        )
+    ion = Chem.MolFromSmiles(counterion)
+    if ion is None or Chem.GetFormalCharge(ion) == 0:
+        raise InputError(f"[compute] counterion '{counterion}' must be a valid SMILES of a charged ion",
+                         row=label, field="smiles", source=source)
+    try:
+        ions = balancing_counterions(net, counterion, Chem.GetFormalCharge(ion))
+    except ValueError as exc:
+        raise InputError(f"{exc}; write the counterions into the SMILES or the 'counterion' column",
+                         row=label, field="smiles", source=source) from exc
+    added = ions.count(".") + 1
+    salt = Chem.CombineMols(mol, Chem.MolFromSmiles(ions))
+    return salt, f"net charge {net:+d} balanced with {added} x {counterion} ([compute] counterion)"
 
 
 def _rows_from_csv(path: Path) -> Iterable[tuple[int, dict[str, Any]]]:

@@ -385,6 +385,7 @@ def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[
         C.SMILES: cand.smiles,
         C.CANONICAL_SMILES: cand.main_smiles,
         "counterions": ".".join(cand.counterions),
+        "counterion_note": cand.counterion_note,
         C.ROLE: cand.role,
         C.N_ELECTRONS: cand.n_electrons,
         C.MOLAR_MASS: round(cand.molar_mass_g_per_mol, 3),

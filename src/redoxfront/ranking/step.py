@@ -265,6 +265,9 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
         "potential_basis_counts": {str(k): int(v) for k, v in basis.items() if k},
         "rate_basis_counts": {str(k): int(v) for k, v in result.table[col.RATE_BASIS].value_counts().items() if k}
         if col.RATE_BASIS in result.table else {},
+        "counterion_setting": campaign.compute.counterion,
+        "n_balanced_with_counterion": int(result.table["counterion_note"].fillna("").astype(str).ne("").sum())
+        if "counterion_note" in result.table else 0,
         "reference_label": reference_label(campaign.compute.reference, campaign.compute.user_reference_name),
         "cell": dataclasses.asdict(cell_settings),
         "ranking": {**dataclasses.asdict(settings), "objectives": list(settings.objectives)},
