@@ -9,3 +9,30 @@ from redoxfront.campaign import (
 for _var in THREAD_VARIABLES:
     os.environ.setdefault(_var, "1")
 os.environ.setdefault("MPLBACKEND", "Agg")
+
+
+import pytest  # noqa: E402
+
+
+@pytest.fixture(scope="session")
+def demo_results(tmp_path_factory):
+    """The reduced demo campaign, run once for every report test (about 20 s)."""
+    from report_campaigns import reduced_demo
+
+    from redoxfront.pipeline import run_campaign
+
+    folder = reduced_demo(tmp_path_factory.mktemp("demo") / "dimethoxybenzene-catholytes")
+    run_campaign(folder, progress=False, echo=lambda _line: None)
+    return folder
+
+
+@pytest.fixture(scope="session")
+def first_screen_results(tmp_path_factory):
+    """A first screen without measurements, run once (a few seconds)."""
+    from report_campaigns import first_screen
+
+    from redoxfront.pipeline import run_campaign
+
+    folder = first_screen(tmp_path_factory.mktemp("screen") / "first-screen")
+    run_campaign(folder, progress=False, echo=lambda _line: None)
+    return folder

@@ -32,6 +32,12 @@ _LABELS = {
 }
 
 
+def fade_figure_stem(dataset_id: str) -> str:
+    """File name (without suffix) of a dataset's figure: ``fade_<id>`` with characters
+    other than letters, digits, '-', '_' and '.' replaced by '_'."""
+    return "fade_" + "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in str(dataset_id))
+
+
 def plot_fade_fit(
     dataset_id: str,
     table: pd.DataFrame,

@@ -273,11 +273,10 @@ def fit_fade_folder(paths: str | Path | Iterable[str | Path], settings: FadeSett
                    f"(95 % CI {res.row[K_FIRST + LOW]:.4g} to {res.row[K_FIRST + HIGH]:.4g}, "
                    f"{res.chosen_fit.ci_method_})", ""]
         if s.figures:
-            from redoxfront.fade.figures import plot_fade_fit
+            from redoxfront.fade.figures import fade_figure_stem, plot_fade_fit
 
-            name = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in did)
             plot_fade_fit(did, res.series.table, res.t0_h, res.series.signal_label, res.choice,
-                          res.chosen_fit, res.row, out / "figures" / f"fade_{name}.{s.figure_format}")
+                          res.chosen_fit, res.row, out / "figures" / f"{fade_figure_stem(did)}.{s.figure_format}")
     rates = pd.DataFrame(rows).reindex(columns=list(RATE_TABLE_COLUMNS))
     write_csv(rates, out / "rates.csv")
     if model_tabs:

@@ -1,0 +1,123 @@
+"""The report reads without the tool: human headers, meaningful rounding, the numbers the
+result files hold, sections in order, ids as text, and a correct first-screen report."""
+
+from __future__ import annotations
+
+import json
+import re
+
+import pandas as pd
+import pytest
+from report_campaigns import HOSTILE_ID
+
+from redoxfront import columns as C
+from redoxfront.report import formatting as F
+
+SECTION_ORDER = ["title", "summary", "picks", "safety", "assumptions", "front", "candidates", "model",
+                 "limitations", "files"]
+
+
+def _html(folder) -> str:
+    return (folder / "results" / "report.html").read_text(encoding="utf-8")
+
+
+def _table_rows(html: str) -> list[str]:
+    body = html.split('<table class="sortable" id="candidate-table">', 1)[1].split("<tbody>", 1)[1].split("</tbody>", 1)[0]
+    return re.findall(r"<tr>(.*?)</tr>", body, re.S)
+
+
+def test_significant_figures_and_fixed_decimals():
+    # common practice, no source: 2 significant figures, no exponent for ordinary sizes
+    assert F.significant(3437.788, 2) == "3400"
+    assert F.significant(0.012345, 2) == "0.012"
+    assert F.significant(53.2, 2) == "53"
+    assert F.significant(2.5e7, 2) == "2.5 × 10⁷"
+    assert F.fixed(1.23456, 2) == "1.23"
+    assert F.fixed(-0.001, 2) == "0.00"  # no "-0.00"
+    assert F.significant(float("nan")) == "" and F.fixed(None, 1) == ""
+
+
+def test_badges_carry_text_and_unknown_flag_values_still_show():
+    row = {C.POTENTIAL_BASIS: "uncalibrated", C.DOMAIN: "extrapolating", C.KNEE: "True", C.MEASURED: False}
+    texts = [b["text"] for b in F.badges(row)]
+    # common practice, no source: colour is never the only signal, every badge has words
+    assert texts == ["uncalibrated potential (±0.3 V typical)", "rate model extrapolates", "knee of the front"]
+    assert F.badges({C.DOMAIN: "borderline"}) == [{"text": "domain: borderline", "style": "info"}]
+
+
+def test_demo_report_sections_in_order_and_self_contained(demo_results):
+    html = _html(demo_results)
+    positions = [html.index(f'id="{s}"') for s in SECTION_ORDER]
+    assert positions == sorted(positions)
+    # self-contained: no resource fetched from anywhere (common practice, no source)
+    assert re.search(r"https?://", html) is None
+    assert "<img src=x" not in html and "&lt;img src=x onerror=alert(1)&gt;" in html
+    assert "Invented demo" in html  # the campaign's own banner
+
+
+def test_demo_table_has_human_headers_and_rounded_numbers(demo_results):
+    html = _html(demo_results)
+    ranking = pd.read_csv(demo_results / "results" / "ranking.csv", dtype={C.ID: str})
+    heads = re.findall(r'<th scope="col"[^>]*><button type="button">(.*?)</button>', html)
+    assert heads[:4] == ["Pick", "Candidate", "Flags", 'Potential<span class="unit">V vs Fc+/Fc</span>']
+    assert 'Half-life<span class="unit">h</span>' in heads
+    assert not any(C.HALF_LIFE_LOW in h or "_" in re.sub(r"<[^>]+>", "", h) for h in heads)
+    rows = _table_rows(html)
+    assert len(rows) == int(ranking[C.STATUS].eq("ok").sum())
+    # half-life to 2 significant figures, energy density to 0.1 Wh/L (the issue's precision)
+    best = ranking.iloc[0]
+    first = rows[0]
+    assert f'data-sort="{float(best[C.HALF_LIFE])!r}">{F.significant(best[C.HALF_LIFE], 2)}<' in first
+    assert f">{best[C.ENERGY_DENSITY]:.1f}<" in first
+
+
+def test_demo_model_section_states_y_randomisation_p_and_equation(demo_results):
+    html = _html(demo_results)
+    model = json.loads((demo_results / "results" / "model.json").read_text())
+    p = model["statistics"]["y_randomisation"]["p_value_q2"]
+    assert f"<dt>y-randomisation p (Q²)</dt><dd>{F.significant(p, 2)}</dd>" in html
+    b0 = model["coefficients"][0]
+    assert f"log10(k / 1/h) = {F.significant(b0, 3)}" in html
+    for fade_id in ("dmb-01", "dmb-02", "dmb-03"):  # every fade fit has its row and figure
+        assert f'aria-label="Fade fit of {fade_id}"' in html or f'alt="Fade fit of {fade_id}"' in html
+
+
+def test_demo_method_reports_conformers_really_embedded(demo_results):
+    html = _html(demo_results)
+    desc = pd.read_csv(demo_results / "results" / "descriptors.csv")
+    ok = desc[desc[C.STATUS] == "ok"]
+    lo, hi = int(ok["conformers_embedded"].min()), int(ok["conformers_embedded"].max())
+    text = f"Actually embedded per candidate: {lo}" if lo == hi else f"Actually embedded per candidate: {lo} to {hi}"
+    assert text in html
+    assert "2 conformers requested per candidate, the lowest 1 refined" in html
+
+
+def test_demo_rejected_row_listed_with_reason(demo_results):
+    html = _html(demo_results)
+    left = html.split("<h3>Left out, with reasons</h3>", 1)[1]
+    assert "bad-row" in left and "cannot parse SMILES" in left
+
+
+def test_first_screen_report_has_picks_and_no_missing_half_life_claims(first_screen_results):
+    html = _html(first_screen_results)
+    assert "No picks" not in html and "run the ranking step" not in html
+    cards = re.findall(r'<article class="card">', html)
+    assert len(cards) == 2  # n_suggestions = 2
+    assert "not predicted (no rate model yet)" in html
+    assert "uncalibrated potential (±0.3 V typical)" in html
+    assert "&lt;img src=x onerror=alert(1)&gt;" in html and HOSTILE_ID not in html
+    assert "ranked on cell voltage, molar mass (lower is better)" in html
+    assert "no predicted rate" not in html  # said once in the summary, not on every row
+
+
+@pytest.mark.parametrize("smiles, atoms", [("COc1ccc(OC)cc1", 10), ("not a smiles", 0)])
+def test_structure_drawing_is_inline_svg_without_urls(smiles, atoms):
+    from redoxfront.report.structures import structure_svg
+
+    svg = structure_svg(smiles)
+    if atoms == 0:
+        assert svg == ""
+        return
+    assert svg.startswith("<svg") and "http" not in svg and "<?xml" not in svg
+    # RDKit: one drawn element per heavy atom (class atom-N), 1,4-dimethoxybenzene has 10
+    assert len(set(re.findall(r"atom-(\d+)", svg))) == atoms
