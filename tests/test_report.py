@@ -38,10 +38,11 @@ def test_significant_figures_and_fixed_decimals():
 
 
 def test_badges_carry_text_and_unknown_flag_values_still_show():
-    row = {C.POTENTIAL_BASIS: "uncalibrated", C.DOMAIN: "extrapolating", C.KNEE: "True", C.MEASURED: False}
+    row = {C.POTENTIAL_BASIS: "uncalibrated", C.DOMAIN: "extrapolating", C.KNEE: "True", C.MEASURED: False,
+           C.RATE_BASIS: "predicted"}
     texts = [b["text"] for b in F.badges(row)]
     # common practice, no source: colour is never the only signal, every badge has words
-    assert texts == ["uncalibrated potential (±0.3 V typical)", "rate model extrapolates", "knee of the front"]
+    assert texts == ["uncalibrated potential", "rate model extrapolates", "knee of the front"]
     assert F.badges({C.DOMAIN: "borderline"}) == [{"text": "domain: borderline", "style": "info"}]
 
 
@@ -104,7 +105,7 @@ def test_first_screen_report_has_picks_and_no_missing_half_life_claims(first_scr
     cards = re.findall(r'<article class="card">', html)
     assert len(cards) == 2  # n_suggestions = 2
     assert "not predicted (no rate model yet)" in html
-    assert "uncalibrated potential (±0.3 V typical)" in html
+    assert "uncalibrated potential" in html
     assert "&lt;img src=x onerror=alert(1)&gt;" in html and HOSTILE_ID not in html
     assert "ranked on cell voltage, molar mass (lower is better)" in html
     assert "no predicted rate" not in html  # said once in the summary, not on every row
@@ -121,3 +122,10 @@ def test_structure_drawing_is_inline_svg_without_urls(smiles, atoms):
     assert svg.startswith("<svg") and "http" not in svg and "<?xml" not in svg
     # RDKit: one drawn element per heavy atom (class atom-N), 1,4-dimethoxybenzene has 10
     assert len(set(re.findall(r"atom-(\d+)", svg))) == atoms
+
+
+def test_model_domain_badge_left_out_when_the_rate_was_measured():
+    # a measured rate does not depend on the model, so its domain is no warning (common practice, no source)
+    row = {C.POTENTIAL_BASIS: "measured", C.DOMAIN: "extrapolating", C.RATE_BASIS: "measured",
+           C.CALIBRATION_STATUS: "calibrated (outside calibration range)"}
+    assert [b["text"] for b in F.badges(row)] == ["measured potential", "rate measured"]

@@ -58,33 +58,28 @@ def figure(res: Path, stem: str, title: str, caption: str = "") -> dict[str, str
     return None
 
 
-def shown_potential(table: pd.DataFrame, ref: str, uncalibrated_v: float) -> pd.DataFrame:
-    """Add the potential each candidate's cell voltage used, with its 95 % interval:
-    measured, calibrated (prediction interval) or uncalibrated (± ``uncalibrated_v``),
-    as named by ``potential_basis`` (uncalibrated where no basis is given)."""
+def shown_potential(table: pd.DataFrame, ref: str) -> pd.DataFrame:
+    """Add the potential each candidate is ranked on, with its 95 % interval (columns
+    ``potential_shown*``): the ranking's ``potential_used`` columns where the ranking ran,
+    else the calibrated potential with its prediction interval, else the uncalibrated one
+    (no interval: the ranking gives it its band)."""
     t = table.copy()
-    raw = C.potential_uncalibrated(ref)
-    basis = (t[C.POTENTIAL_BASIS].fillna("").astype(str) if C.POTENTIAL_BASIS in t
-             else pd.Series("", index=t.index))
-    value = pd.Series(float("nan"), index=t.index)
-    low, high = value.copy(), value.copy()
 
     def col(name: str) -> pd.Series:
         return pd.to_numeric(t[name], errors="coerce") if name in t else pd.Series(float("nan"), index=t.index)
 
-    is_meas = basis.str.startswith("measured")
-    is_cal = basis.str.startswith("calibrated")
-    is_raw = ~(is_meas | is_cal)
-    value[is_meas] = col(C.potential_measured(ref))[is_meas]
-    value[is_cal] = col(C.potential_calibrated(ref))[is_cal]
-    low[is_cal] = col(C.potential_calibrated_pi_low(ref))[is_cal]
-    high[is_cal] = col(C.potential_calibrated_pi_high(ref))[is_cal]
-    value[is_raw] = col(raw)[is_raw]
-    low[is_raw] = value[is_raw] - uncalibrated_v
-    high[is_raw] = value[is_raw] + uncalibrated_v
-    t["potential_shown"], t["potential_shown_low"], t["potential_shown_high"] = value, low, high
+    if C.potential_used(ref) in t:
+        t["potential_shown"] = col(C.potential_used(ref))
+        t["potential_shown_low"] = col(C.potential_used_low(ref))
+        t["potential_shown_high"] = col(C.potential_used_high(ref))
+        return t
+    cal, raw = col(C.potential_calibrated(ref)), col(C.potential_uncalibrated(ref))
+    use_cal = cal.notna()
+    t["potential_shown"] = cal.where(use_cal, raw)
+    t["potential_shown_low"] = col(C.potential_calibrated_pi_low(ref)).where(use_cal)
+    t["potential_shown_high"] = col(C.potential_calibrated_pi_high(ref)).where(use_cal)
     if C.POTENTIAL_BASIS not in t:
-        t[C.POTENTIAL_BASIS] = "uncalibrated"
+        t[C.POTENTIAL_BASIS] = use_cal.map({True: "calibrated", False: "uncalibrated"}).where(t["potential_shown"].notna(), "")
     return t
 
 
@@ -119,7 +114,7 @@ NO_MODEL_NOTES: tuple[str, ...] = ("no predicted rate",)
 """Row notes that only repeat that there is no rate model (the summary says it once)."""
 
 
-def table_section(table: pd.DataFrame | None, ref: str, res: Path,
+def table_section(table: pd.DataFrame | None, label: str, res: Path,
                   hide_notes: tuple[str, ...] = ()) -> dict[str, Any]:
     """Whole candidate table (headers, rows with badges) and the rows left out, with reasons."""
     out: dict[str, Any] = {"headers": [], "rows": [], "truncated": 0, "problems": [], "failed": [],
@@ -127,7 +122,7 @@ def table_section(table: pd.DataFrame | None, ref: str, res: Path,
     if table is not None and len(table):
         ok = table[C.STATUS].astype(str).eq("ok") if C.STATUS in table else pd.Series(True, index=table.index)
         shown = table[ok]
-        cols = tuple(c for c in F.table_columns(ref) if c.key in shown.columns and shown[c.key].notna().any())
+        cols = tuple(c for c in F.table_columns(label) if c.key in shown.columns and shown[c.key].notna().any())
         subs = [c for c in shown.columns if str(c).startswith(C.SUBSTITUENT_PREFIX)]
         smiles = tuple(c for c in cols if c.key == C.SMILES)
         cols = tuple(c for c in cols if c.key != C.SMILES)
@@ -153,7 +148,7 @@ def table_section(table: pd.DataFrame | None, ref: str, res: Path,
     return out
 
 
-def pick_cards(table: pd.DataFrame | None, objectives: list[str], ref: str,
+def pick_cards(table: pd.DataFrame | None, objectives: list[str], label: str,
                hide_notes: tuple[str, ...] = ()) -> tuple[list[dict[str, Any]], str]:
     """One card per pick (or, when every ranked candidate is measured, the first front)."""
     if table is None or C.PARETO_RANK not in table or table[C.PARETO_RANK].notna().sum() == 0:
@@ -171,7 +166,7 @@ def pick_cards(table: pd.DataFrame | None, objectives: list[str], ref: str,
             "id": str(rec[C.ID]),
             "smiles": "" if F._missing(rec.get(C.SMILES)) else str(rec[C.SMILES]),
             "structure": structure_svg(str(rec.get(C.SMILES, "")), id_prefix=f"pick{k + 1}-"),
-            "facts": narrative.card_facts(rec, ref, objectives),
+            "facts": narrative.card_facts(rec, label, objectives),
             "badges": F.badges(rec),
             "note": row_note(rec, hide_notes),
             "sentence": narrative.pick_sentence(rec, objectives),
@@ -179,12 +174,12 @@ def pick_cards(table: pd.DataFrame | None, objectives: list[str], ref: str,
     return cards, basis
 
 
-def model_section(res: Path, ref: str) -> dict[str, Any]:
+def model_section(res: Path, ref: str, label: str) -> dict[str, Any]:
     """Rate model (equation, statistics, coefficients, figures), calibration and fade fits."""
     model = read_json(res / "model.json")
     out: dict[str, Any] = {"model": None, "calibration": None, "fade": []}
     if model is not None:
-        out["model"] = narrative.model_facts(model, ref)
+        out["model"] = narrative.model_facts(model, ref, label)
         out["model"]["figures"] = [f for f in (
             figure(res, "observed_vs_predicted", "Observed against predicted log10 k",
                    "Filled: fitted; open: leave-one-out predictions of the same training rows; "
@@ -197,7 +192,7 @@ def model_section(res: Path, ref: str) -> dict[str, Any]:
         ) if f]
     cal = read_json(res / "calibration.json")
     if cal and cal.get("lines"):
-        out["calibration"] = narrative.calibration_facts(cal, ref)
+        out["calibration"] = narrative.calibration_facts(cal, label)
         fig = figure(res, "calibration_parity", "Calibration of computed potentials",
                      "Measured against computed potential with the fitted line and its 95 % prediction band.")
         out["calibration"]["figures"] = [fig] if fig else []
@@ -232,6 +227,7 @@ def gather(campaign: Campaign, title: str, note: str) -> dict[str, Any]:
     """The whole report as a plain dict: one key per section, in reading order."""
     res = campaign.results_dir
     ref = campaign.compute.reference
+    label = F.reference_name(ref, campaign.compute.user_reference_name)
     from redoxfront.ranking.cell_metrics import CellSettings
     from redoxfront.campaign import section_from_mapping
 
@@ -239,26 +235,26 @@ def gather(campaign: Campaign, title: str, note: str) -> dict[str, Any]:
     desc = read_csv(res / "descriptors.csv")
     table, source = candidate_table(res)
     if table is not None:
-        table = shown_potential(table, ref, cell.uncalibrated_uncertainty_v)
+        table = shown_potential(table, ref)
     summary = read_json(res / "ranking_summary.json") or {}
     ranked = source == "ranking.csv"
     objectives = list(summary.get("objectives", [])) if ranked else []
-    models = model_section(res, ref)
+    models = model_section(res, ref, label)
     hide = NO_MODEL_NOTES if models["model"] is None else ()
-    cards, card_basis = pick_cards(table if ranked else None, objectives, ref, hide)
-    tab = table_section(table, ref, res, hide)
+    cards, card_basis = pick_cards(table if ranked else None, objectives, label, hide)
+    tab = table_section(table, label, res, hide)
     return {
         "title": title or campaign.name,
         "campaign": campaign.name,
         "version": __version__,
         "date": _dt.datetime.now().strftime("%Y-%m-%d %H:%M"),
         "banner": note,
-        "reference": F.reference_name(ref),
+        "reference": label,
         "summary": narrative.summary_paragraphs(desc, tab, cards, card_basis, models, summary, ranked, campaign),
         "picks": {"cards": cards, "basis": card_basis, "ranked": ranked,
                   "why_none": narrative.why_no_picks(campaign, ranked, res)},
         "safety": list(SAFETY_NOTES),
-        "assumptions": narrative.assumptions(campaign, cell, desc, summary),
+        "assumptions": narrative.assumptions(campaign, cell, desc, summary, label),
         "method": narrative.method_line(campaign, desc),
         "front": front_section(res, summary) if ranked else None,
         "table": tab,

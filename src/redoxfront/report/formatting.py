@@ -17,18 +17,15 @@ import pandas as pd
 
 from redoxfront import columns as C
 
-REFERENCE_NAMES: dict[str, str] = {
-    "fc": "Fc+/Fc",
-    "sce": "SCE",
-    "she": "SHE",
-    "agagcl": "Ag/AgCl (sat. KCl)",
-}
-"""Reference electrode short key -> the name a reader knows."""
+def reference_name(ref: str, user_name: str | None = None) -> str:
+    """Human name of a reference electrode key (``fc`` -> ``Fc+/Fc``), from :mod:`redoxfront.units`."""
+    from redoxfront.errors import SettingsError
+    from redoxfront.units import reference_label
 
-
-def reference_name(ref: str) -> str:
-    """Human name of a reference electrode key (``fc`` -> ``Fc+/Fc``)."""
-    return REFERENCE_NAMES.get(str(ref), str(ref))
+    try:
+        return reference_label(ref, user_name)
+    except SettingsError:
+        return str(ref)
 
 
 def _missing(value: Any) -> bool:
@@ -128,27 +125,40 @@ class Flag:
 
     key: str
     badges: Mapping[Any, tuple[str, str] | None] = field(default_factory=dict)
+    unless: tuple[tuple[str, frozenset[str]], ...] = ()
+    """No badge when another column of the row holds one of these values (e.g. the model's
+    domain does not matter for a candidate whose rate was measured)."""
 
+
+_OWN_RATE = ((C.RATE_BASIS, frozenset({"measured", "fitted"})),)
+_OWN_POTENTIAL = ((C.POTENTIAL_BASIS, frozenset({"measured"})),)
 
 FLAGS: tuple[Flag, ...] = (
     Flag(C.POTENTIAL_BASIS, {
         "measured": ("measured potential", "good"),
         "calibrated": ("calibrated potential", "good"),
-        "uncalibrated": ("uncalibrated potential (±0.3 V typical)", "warn"),
+        "uncalibrated": ("uncalibrated potential", "warn"),
         "": None,
     }),
     Flag(C.CALIBRATION_STATUS, {
         "calibrated": None,
         "uncalibrated": None,  # said by the potential basis
         "calibrated (outside calibration range)": ("outside calibration range", "warn"),
+    }, unless=_OWN_POTENTIAL),
+    Flag(C.POTENTIAL_FLAG, {"": None}),
+    Flag(C.RATE_BASIS, {
+        "measured": ("rate measured", "good"),
+        "fitted": ("rate fitted from cycling", "good"),
+        "predicted": None,
+        "": None,
     }),
     Flag(C.DOMAIN, {
         "inside": None,
         "extrapolating": ("rate model extrapolates", "bad"),
         "": None,
-    }),
+    }, unless=_OWN_RATE),
     Flag(C.CONCENTRATION_CAPPED, {True: ("concentration capped by solubility", "info"), False: None}),
-    Flag(C.MEASURED, {True: ("rate measured", "good"), False: None}),
+    Flag(C.MEASURED, {True: ("rate measured", "good"), False: None}, unless=((C.RATE_BASIS, frozenset({"measured", "fitted", "predicted"})),)),
     Flag(C.KNEE, {True: ("knee of the front", "info"), False: None}),
 )
 """Every flag column the report shows as badges, in the order they appear."""
@@ -176,6 +186,8 @@ def badges(row: Mapping[str, Any], flags: tuple[Flag, ...] = FLAGS) -> list[dict
     for flag in flags:
         if flag.key not in row:
             continue
+        if any(str(_normalise(row.get(other))) in values for other, values in flag.unless):
+            continue
         value = _normalise(row[flag.key])
         if value in flag.badges:
             found = flag.badges[value]
@@ -190,9 +202,9 @@ def badges(row: Mapping[str, Any], flags: tuple[Flag, ...] = FLAGS) -> list[dict
     return out
 
 
-def table_columns(ref: str) -> tuple[Column, ...]:
-    """Columns of the candidate table in reading order (those a table lacks are skipped)."""
-    r = reference_name(ref)
+def table_columns(r: str) -> tuple[Column, ...]:
+    """Columns of the candidate table in reading order (those a table lacks are skipped);
+    ``r``: the reference electrode as a reader knows it."""
     return (
         Column(C.PICK_ORDER, "Pick", kind="int"),
         Column(C.ID, "Candidate", kind="text"),

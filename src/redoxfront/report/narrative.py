@@ -89,9 +89,9 @@ def _interval(rec: Mapping[str, Any], low: str, high: str, kind: str, digits: in
     return f"({lo}–{hi})" if lo and hi else ""
 
 
-def card_facts(rec: Mapping[str, Any], ref: str, objectives: list[str] | tuple[str, ...] = ()) -> list[dict[str, str]]:
-    """The numbers of one pick card: label, value with unit, its 95 % interval."""
-    r = F.reference_name(ref)
+def card_facts(rec: Mapping[str, Any], r: str, objectives: list[str] | tuple[str, ...] = ()) -> list[dict[str, str]]:
+    """The numbers of one pick card: label, value with unit, its 95 % interval; ``r``: the
+    reference electrode as a reader knows it."""
     half = F.significant(rec.get(C.HALF_LIFE), 2)
     words = F.duration_words(rec.get(C.HALF_LIFE))
     partner = rec.get(C.PARTNER_ID)
@@ -140,7 +140,7 @@ def pick_sentence(rec: Mapping[str, Any], objectives: list[str]) -> str:
     return f"{rec[C.ID]} ({text})"
 
 
-def model_facts(model: Mapping[str, Any], ref: str) -> dict[str, Any]:
+def model_facts(model: Mapping[str, Any], ref: str, label: str) -> dict[str, Any]:
     """Equation with units, statistics and coefficient table of the rate model."""
     st = model.get("statistics", {}) or {}
     ctx = model.get("context", {}) or {}
@@ -151,7 +151,7 @@ def model_facts(model: Mapping[str, Any], ref: str) -> dict[str, Any]:
     eq = f"log10(k / {unit}) = {F.significant(coef[0], 3)}" if coef else ""
     for t, b in zip(terms, coef[1:]):
         sign = "−" if b < 0 else "+"
-        eq += f" {sign} {F.significant(abs(b), 3)} × {describe_column(t, ref)}"
+        eq += f" {sign} {F.significant(abs(b), 3)} × {describe_column(t, ref, label)}"
     yr = st.get("y_randomisation") or {}
     p_yr = yr.get("p_value_q2", yr.get("p_value"))
     ext = ctx.get("external_validation") or {}
@@ -172,7 +172,7 @@ def model_facts(model: Mapping[str, Any], ref: str) -> dict[str, Any]:
     coef_rows = []
     for row in model.get("coefficient_table", []) or []:
         coef_rows.append({
-            "term": "intercept" if row.get("term") == "intercept" else describe_column(str(row.get("term")), ref),
+            "term": "intercept" if row.get("term") == "intercept" else describe_column(str(row.get("term")), ref, label),
             "coefficient": F.significant(row.get("coefficient"), 3),
             "se": F.significant(row.get("standard_error"), 2),
             "p": F.significant(row.get("p_value"), 2),
@@ -194,9 +194,8 @@ _UNIT_WORDS = (
 )
 
 
-def describe_column(name: str, ref: str) -> str:
-    """A descriptor or potential column said in words with its unit."""
-    r = F.reference_name(ref)
+def describe_column(name: str, ref: str, r: str) -> str:
+    """A descriptor or potential column said in words with its unit (``r``: the reference's label)."""
     known = {
         C.potential_calibrated(ref): f"E calibrated (V vs {r})",
         C.potential_uncalibrated(ref): f"E uncalibrated (V vs {r})",
@@ -212,7 +211,7 @@ def describe_column(name: str, ref: str) -> str:
     return text.replace("_", " ").replace("  ", " ").strip()
 
 
-def calibration_facts(cal: Mapping[str, Any], ref: str) -> dict[str, Any]:
+def calibration_facts(cal: Mapping[str, Any], label: str) -> dict[str, Any]:
     """Calibration lines in words: measured = intercept + slope × computed, with statistics."""
     lines = []
     for ln in cal.get("lines", []):
@@ -226,7 +225,7 @@ def calibration_facts(cal: Mapping[str, Any], ref: str) -> dict[str, Any]:
             "range": f"{F.fixed(ln.get('computed_min_v'), 2)} to {F.fixed(ln.get('computed_max_v'), 2)} V",
         })
     return {"lines": lines, "notes": [str(n) for n in cal.get("notes", [])],
-            "n_measured": cal.get("n_measured_used"), "reference": F.reference_name(ref)}
+            "n_measured": cal.get("n_measured_used"), "reference": label}
 
 
 FADE_LAW_WORDS = {
@@ -295,10 +294,10 @@ def method_line(campaign: Campaign, desc: pd.DataFrame | None) -> str:
 
 
 def assumptions(campaign: Campaign, cell: Any, desc: pd.DataFrame | None,
-                summary: Mapping[str, Any]) -> list[dict[str, str]]:
-    """The cell and method assumptions behind every number, as label/value pairs."""
+                summary: Mapping[str, Any], r: str) -> list[dict[str, str]]:
+    """The cell and method assumptions behind every number, as label/value pairs (``r``: the
+    reference electrode as a reader knows it)."""
     s = campaign.compute
-    r = F.reference_name(s.reference)
     other = "anolyte" if s.role == "catholyte" else "catholyte"
     if cell.counter == "potential":
         counter = (f"a fixed counter couple at {cell.counter_potential_v:+.2f} V vs {r} (an {other} chosen by the "
@@ -323,8 +322,11 @@ def assumptions(campaign: Campaign, cell: Any, desc: pd.DataFrame | None,
         ("Solvent", "none (gas phase)" if s.solvent == "none" else f"{s.solvent} (ALPB implicit solvent)"),
         ("Electrolyte window", "not checked by this tool: check both couples against your solvent and salt"),
         ("Reference electrode", f"potentials vs {r}; conversions: {conv}"),
-        ("Uncalibrated potentials", f"given a 95 % interval of ±{cell.uncalibrated_uncertainty_v:g} V "
-                                    "(Davis & Fry, J. Phys. Chem. A 2010, 114, 12299)"),
+        ("Uncalibrated potentials", (f"given a 95 % interval of ±{cell.uncalibrated_uncertainty_v:g} V ([cell] "
+                                     "uncalibrated_uncertainty_v)") if cell.uncalibrated_uncertainty_v is not None else
+         "given the 95 % error band of their couple type (oxidation or reduction), measured on published "
+         "potentials (see the ranking documentation); typically about 0.3 V (Davis & Fry, J. Phys. Chem. A "
+         "2010, 114, 12299)"),
         ("Half-life", f"rate order {order}, at the operating concentration"),
         ("Method", method_line(campaign, desc)),
         ("Conformers", conformer_words(campaign, desc)),
