@@ -119,7 +119,9 @@ def test_run_builds_the_library_before_computing(tmp_path: Path):
     assert ranking["pareto_rank"].notna().all()
     picks = pd.read_csv(tmp_path / "results" / "picks.csv", keep_default_na=False)
     assert set(picks["substituent_1"]) <= {"H", "OC"}  # the picks say which building blocks they use
-    assert '<th class="t">substituent_1</th>' in (tmp_path / "results" / "report.html").read_text()
+    html = (tmp_path / "results" / "report.html").read_text()
+    assert '<button type="button">Site 1</button>' in html  # the table's column of the building block
+    assert "<dt>Substituents</dt><dd>site 1: " in html  # and each pick card
 
 
 def test_charged_products_get_balancing_counterions():

@@ -119,6 +119,14 @@ def card_facts(rec: Mapping[str, Any], r: str, objectives: list[str] | tuple[str
     return [{"label": a, "value": b, "interval": c} for a, b, c in facts if b]
 
 
+def building_blocks(rec: Mapping[str, Any]) -> list[dict[str, str]]:
+    """A library candidate's substituent at each site of the scaffold, as one card line."""
+    sites = sorted((k for k in rec if str(k).startswith(C.SUBSTITUENT_PREFIX)), key=str)
+    text = ", ".join(f"{str(k).replace(C.SUBSTITUENT_PREFIX, 'site ')}: {rec[k]}" for k in sites
+                     if not F._missing(rec[k]))
+    return [{"label": "Substituents", "value": text, "interval": ""}] if text else []
+
+
 def pick_sentence(rec: Mapping[str, Any], objectives: list[str]) -> str:
     """One sentence on a pick: its objectives with values and 95 % intervals."""
     parts = []
