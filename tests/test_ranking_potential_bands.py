@@ -78,3 +78,29 @@ def test_one_stored_reference_error_recomputes_with_the_engine(tmp_path):
                                      describe=False)
     computed_abs = outcomes[0].row[col.potential_uncalibrated("she")] + ABSOLUTE_SHE_V["trasatti"]
     assert computed_abs == pytest.approx(row["computed_abs_v"], abs=0.02)
+
+
+def test_window_flags_water_by_ph_and_acetonitrile():
+    """Issue 11: candidates whose potential (with its interval) lies outside the usable window
+    of the solvent are flagged; the water window moves 59 mV per pH unit."""
+    from redoxfront.ranking.windows import solvent_window, window_flags
+
+    # Pourbaix: H2 evolution at -0.059 pH, O2 evolution at 1.229 - 0.059 pH V vs SHE
+    w7 = solvent_window("water", "she", ph=7.0)
+    assert w7.low_v == pytest.approx(-0.414, abs=1e-3) and w7.high_v == pytest.approx(0.815, abs=1e-3)
+    w14 = solvent_window("water", "she", ph=14.0)
+    assert w14.low_v == pytest.approx(-0.828, abs=1e-3)
+    # vs SCE (+0.241 V vs SHE, Bard & Faulkner)
+    assert solvent_window("water", "sce", ph=0.0).high_v == pytest.approx(1.229 - 0.241, abs=1e-3)
+    # Elgrishi et al., J. Chem. Educ. 2018, 95, 197 (from memory): MeCN/TBAPF6 ~ -2.7 to +2.5 V vs Fc+/Fc
+    wm = solvent_window("acetonitrile", "fc")
+    assert (wm.low_v, wm.high_v) == (-2.7, 2.5)
+    flags = window_flags(np.array([0.5, 2.4, 2.6, -3.0]), np.array([0.9, 2.6, 2.9, -2.8]), wm)
+    assert flags[0] == "" and flags[1].startswith("may be outside the window: above the oxidation limit 2.50 V")
+    assert flags[2].startswith("outside the window: above") and flags[3].startswith("outside the window: below")
+    assert solvent_window("acetonitrile", "fc", high_v=1.0).high_v == 1.0  # [cell] overrides
+    t = pd.DataFrame({col.ID: ["a", "b"], col.ROLE: "anolyte", col.N_ELECTRONS: 1,
+                      col.potential_measured("she"): [-0.2, -0.6], col.LOG10_K_PRED_FIRST: -3.0})
+    out = cell_metrics(t, CellSettings(counter="potential", counter_potential_v=0.8, ph=7.0), "she",
+                       solvent="water")
+    assert out.loc[0, col.WINDOW_FLAG] == "" and out.loc[1, col.WINDOW_FLAG].startswith("outside the window: below")

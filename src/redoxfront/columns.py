@@ -108,6 +108,8 @@ def potential_used_high(ref: str) -> str:
 
 POTENTIAL_FLAG = "potential_flag"
 """Why a potential's interval is wider than its basis alone gives (two-electron second step)."""
+WINDOW_FLAG = "window_flag"
+"""Whether the potential (with its interval) lies outside the electrolyte's usable window."""
 POTENTIAL_MEASURED_UNCERTAINTY = "potential_measured_uncertainty_v"
 """Half-width of the 95 % interval of a measured potential, V (the measured file's ``uncertainty_v``)."""
 PARTNER_ID = "partner_id"

@@ -60,6 +60,12 @@ class CellSettings:
     uncalibrated_uncertainty_v : half-width of a symmetric 95 % interval for uncalibrated
         potentials, V. Unset (default): the band of the couple type derived from published
         measurements (:mod:`redoxfront.ranking.potential_bands`).
+    window_low_v, window_high_v : usable electrochemical window of the electrolyte, V vs the
+        campaign reference; unset = the typical window of the campaign's solvent
+        (:mod:`redoxfront.ranking.windows`). Candidates whose potential interval crosses it
+        are flagged in ``window_flag``.
+    ph : pH of an aqueous electrolyte (the water window moves by 59 mV per pH unit).
+    water_overpotential_v : margin added to both water-splitting lines (kinetic overpotential).
     """
 
     counter: str = field(default="best-partner", metadata=choice(*COUNTER_MODES))
@@ -71,6 +77,10 @@ class CellSettings:
     utilisation: float = field(default=1.0, metadata=bounded(0.0, 1.0))
     rate_order: int | None = field(default=None, metadata=choice(1, 2))
     uncalibrated_uncertainty_v: float | None = field(default=None, metadata=bounded(0.0, 5.0))
+    window_low_v: float | None = None
+    window_high_v: float | None = None
+    ph: float = field(default=7.0, metadata=bounded(-1.0, 15.0))
+    water_overpotential_v: float = field(default=0.0, metadata=bounded(0.0, 2.0))
 
     def __post_init__(self) -> None:
         if self.counter == "potential" and self.counter_potential_v is None:
@@ -230,6 +240,8 @@ def cell_metrics(
     *,
     default_role: str = "catholyte",
     default_n_electrons: int = 1,
+    solvent: str | None = None,
+    user_reference_v_vs_fc: float | None = None,
 ) -> pd.DataFrame:
     """Cell voltage, capacities, energy density and half-life for every candidate.
 
@@ -377,6 +389,14 @@ def cell_metrics(
     out[col.potential_used_low(ref)] = e_lo
     out[col.potential_used_high(ref)] = e_hi
     out[col.POTENTIAL_FLAG] = pot_flag
+    from redoxfront.ranking.windows import solvent_window, window_flags
+
+    window = solvent_window(solvent or "", ref, ph=settings.ph, water_overpotential_v=settings.water_overpotential_v,
+                            low_v=settings.window_low_v, high_v=settings.window_high_v,
+                            user_v_vs_fc=user_reference_v_vs_fc)
+    out[col.WINDOW_FLAG] = window_flags(e_lo, e_hi, window)
+    out.attrs["window"] = None if window is None else {"low_v": window.low_v, "high_v": window.high_v,
+                                                       "source": window.source}
     out[col.PARTNER_ID] = partner
     out[col.CONCENTRATION] = conc
     out[col.CONCENTRATION_CAPPED] = capped

@@ -171,7 +171,7 @@ def rank_table(table: pd.DataFrame, settings: RankingSettings, *, progress: bool
         col.PICK_ORDER, col.ID, col.SMILES, col.ROLE, col.EXPECTED_HV_GAIN, col.P_FRONT, col.PARETO_RANK,
         col.CELL_VOLTAGE, col.CELL_VOLTAGE_LOW, col.CELL_VOLTAGE_HIGH, col.ENERGY_DENSITY,
         col.HALF_LIFE, col.HALF_LIFE_LOW, col.HALF_LIFE_HIGH, col.MOLAR_MASS, col.POTENTIAL_BASIS,
-        col.DOMAIN, col.EXTRAPOLATING, col.RANKING_NOTE) if c in picks.columns]
+        col.RATE_BASIS, col.POTENTIAL_FLAG, col.WINDOW_FLAG, col.DOMAIN, col.EXTRAPOLATING, col.RANKING_NOTE) if c in picks.columns]
     keep += [c for c in picks.columns if c.startswith(col.SUBSTITUENT_PREFIX)]  # a library's building blocks
     return RankingResult(out, picks[keep], float(hv_fraction), knee_id, names)
 
@@ -248,7 +248,9 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
     metrics = cell_metrics(
         table, cell_settings, campaign.compute.reference,
         default_role=campaign.compute.role, default_n_electrons=campaign.compute.n_electrons,
+        solvent=campaign.compute.solvent, user_reference_v_vs_fc=campaign.compute.user_reference_v_vs_fc,
     )
+    window = metrics.attrs.get("window")
     result = rank_table(metrics, settings, progress=progress)
     out_dir = campaign.results_dir
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -266,8 +268,11 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
         "rate_basis_counts": {str(k): int(v) for k, v in result.table[col.RATE_BASIS].value_counts().items() if k}
         if col.RATE_BASIS in result.table else {},
         "counterion_setting": campaign.compute.counterion,
-        "n_balanced_with_counterion": int(result.table["counterion_note"].fillna("").astype(str).ne("").sum())
+        "n_balanced_with_counterion": int(result.table["counterion_note"].astype("string").fillna("").ne("").sum())
         if "counterion_note" in result.table else 0,
+        "electrochemical_window": window,
+        "n_outside_window": int(result.table[col.WINDOW_FLAG].astype("string").fillna("").ne("").sum())
+        if col.WINDOW_FLAG in result.table else 0,
         "reference_label": reference_label(campaign.compute.reference, campaign.compute.user_reference_name),
         "cell": dataclasses.asdict(cell_settings),
         "ranking": {**dataclasses.asdict(settings), "objectives": list(settings.objectives)},
