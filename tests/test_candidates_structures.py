@@ -1,5 +1,7 @@
 """Candidate reading and validation, redox states and conformers."""
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 from rdkit import Chem
@@ -115,3 +117,112 @@ def test_conformers_deterministic_and_pruned():
     assert 1 <= len(a) <= 3 and len(a) <= n <= 8  # embeddings closer than the RMSD threshold are pruned
     assert all(np.allclose(x, y) for x, y in zip(a, b))
     assert a[0].shape == (mol.GetNumAtoms(), 3)
+
+
+def _hostile(tmp_path, name: str, content: bytes):
+    p = tmp_path / name
+    p.write_bytes(content)
+    return p
+
+
+def test_row_level_problems_are_rejections_and_the_other_rows_go_on(tmp_path):
+    extra = _hostile(tmp_path, "extra.csv", b"id,smiles\na,CCO\nb,CCC,stray\nc,CCCC\n")
+    good, bad = read_candidates(extra, S)
+    assert [c.id for c in good] == ["a", "c"]
+    assert [str(e) for e in bad] == [
+        "extra.csv, row 3: 3 fields, but the header has 2; quote a field that holds the delimiter ',' "
+        "or remove the extra one"]
+    # Python csv module documentation: field_size_limit defaults to 131072 characters
+    big = _hostile(tmp_path, "big.csv", b"id,smiles\na,CCO\nb," + b"C" * 200_000 + b"\nc,CCCC\n")
+    good, bad = read_candidates(big, S)
+    assert [c.id for c in good] == ["a", "c"]
+    assert [str(e) for e in bad] == ["big.csv, row 3: unreadable row (field larger than field limit (131072))"]
+
+
+def test_ids_from_csv_and_sdf_stay_text(tmp_path):
+    csv_file = _hostile(tmp_path, "ids.csv", b"id,smiles\n001,CCO\nNA,CCC\nnull,CCCC\n")
+    assert [c.id for c in read_candidates(csv_file, S)[0]] == ["001", "NA", "null"]
+    sdf = tmp_path / "ids.sdf"
+    from rdkit.Chem import AllChem
+
+    w = Chem.SDWriter(str(sdf))
+    for cid, smi in (("007", "CCO"), ("1e3", "CCC")):
+        m = Chem.AddHs(Chem.MolFromSmiles(smi))
+        AllChem.Compute2DCoords(m)
+        m.SetProp("id", cid)
+        m.SetProp("batch", "0042")
+        w.write(m)
+    w.close()
+    good, bad = read_candidates(sdf, S)
+    assert [c.id for c in good] == ["007", "1e3"] and good[0].extra["batch"] == "0042" and not bad
+
+
+HOSTILE_FILES = {
+    # name: (content, the part of the one-line error that says why)
+    "single.csv": (b"smiles\nCCO\nCCC\n", "needs columns 'id' and 'smiles'; found: smiles"),
+    "latin1.csv": ("id,smiles,note\na,CCO,caf\xe9\n".encode("latin-1"), "not UTF-8 text (byte 0xe9 on line 2"),
+    "binary.csv": (b"\x00\x01id,smiles\n\xff\xfe", "binary data (a NUL byte on line 1)"),
+    "cands.xlsx": (b"PK\x03\x04 a zip container", "a spreadsheet is not read as candidates"),
+    "renamed.csv": (b"PK\x03\x04 an xlsx renamed to csv", "a zip container (a spreadsheet such as .xlsx?)"),
+    "empty.sdf": (b"", "an empty SDF file (no molecules)"),
+    "twice.csv": (b"id,smiles,smiles\na,CCO,CCC\n", "column 'smiles' appears more than once in the header"),
+}
+
+
+@pytest.mark.parametrize("name", sorted(HOSTILE_FILES))
+def test_a_file_that_cannot_be_candidates_gives_one_line_naming_it(tmp_path, name):
+    from click.testing import CliRunner
+
+    from redoxfront.cli import main
+
+    content, why = HOSTILE_FILES[name]
+    path = _hostile(tmp_path, name, content)
+    (tmp_path / "campaign.toml").write_text("[compute]\nworkers = 1\n")
+    r = CliRunner().invoke(main, ["compute", str(tmp_path), "--candidates", str(path), "--quiet"])
+    assert r.exit_code == 2, r.output
+    line = r.output.strip()
+    assert "\n" not in line and "Traceback" not in line
+    assert line.startswith(f"error: {path}: ") and why in line, line
+
+
+@pytest.mark.parametrize("system_file", ["/dev/zero", "/etc/passwd", "/"])
+def test_a_system_file_as_candidates_gives_one_line(tmp_path, system_file):
+    from click.testing import CliRunner
+
+    from redoxfront.cli import main
+
+    if not Path(system_file).exists():
+        pytest.skip(f"{system_file} is not on this system")
+    (tmp_path / "campaign.toml").write_text("[compute]\nworkers = 1\n")
+    r = CliRunner().invoke(main, ["compute", str(tmp_path), "--candidates", system_file, "--quiet"])
+    assert r.exit_code == 2 and r.output.count("\n") == 1, r.output
+    assert r.output.startswith(f"error: {system_file}: ")
+    assert "not a regular file" in r.output or "needs columns 'id' and 'smiles'" in r.output
+
+
+def test_a_latin1_campaign_file_gives_one_line(tmp_path):
+    from click.testing import CliRunner
+
+    from redoxfront.cli import main
+
+    (tmp_path / "campaign.toml").write_bytes('name = "Essai café"\n'.encode("latin-1"))
+    r = CliRunner().invoke(main, ["compute", str(tmp_path), "--quiet"])
+    assert r.exit_code == 2 and r.output.count("\n") == 1, r.output
+    assert "campaign.toml: not UTF-8 text (byte 0xe9 on line 1" in r.output
+
+
+def test_the_carrier_fragment_rule_and_ambiguous_ionic_rows():
+    # common practice, no source: ferrocene is Fe(II) between two cyclopentadienide rings; written
+    # as three ions it must not be computed as one ring with the rest called counterions
+    with pytest.raises(InputError, match=r"ambiguous ionic SMILES: fragment '\[Fe\+2\]' holds Fe.*metallocene"):
+        parse_candidate({"id": "fc", "smiles": "[Fe+2].c1cc[cH-]c1.c1cc[cH-]c1"}, 2, S)
+    with pytest.raises(InputError, match="equally large"):
+        parse_candidate({"id": "x", "smiles": "CC[N+](C)(C)C.CC[N+](C)(C)C.[Cl-]"}, 2, S)
+    with pytest.raises(InputError, match="'CCO' is neutral, so not a counterion"):
+        parse_candidate({"id": "x", "smiles": "COc1ccccc1.CCO"}, 2, S)
+    # a carrier with a salt anion at least as large: the carrier is the ion that is not a salt ion
+    # (TFSI-, bis(trifluoromethanesulfonyl)imide, 15 heavy atoms; 4-trimethylammonio-TEMPO, 15)
+    tempo = "C[N+](C)(C)C1CC(C)(C)N([O])C(C)(C)C1"
+    c = parse_candidate({"id": "t", "smiles": f"O=S(=O)(C(F)(F)F)[N-]S(=O)(=O)C(F)(F)F.{tempo}"}, 2, S)
+    assert c.main_smiles == Chem.MolToSmiles(Chem.MolFromSmiles(tempo)) and c.heavy_atoms == 15
+    assert c.counterions == ("O=S(=O)([N-]S(=O)(=O)C(F)(F)F)C(F)(F)F",)

@@ -18,6 +18,7 @@ from redoxfront.candidates.structures import candidate_states, parse_candidate
 from redoxfront.compute.status import compute_status
 from redoxfront.compute.step import (
     CONFORMER_ENTRY,
+    candidate_row,
     candidate_task,
     compute_campaign,
     compute_candidate,
@@ -311,3 +312,17 @@ def test_a_state_interrupted_between_conformers_keeps_the_finished_ones(tmp_path
         assert s.get(cand.main_smiles, "charge=+0;unpaired=0:conformer:0", key) is None
         assert s.count(key) == 2  # the two whole states, nothing else under this key
     assert compute_status(camp).done == ["m0"]
+
+
+def test_a_potential_beyond_any_electrolyte_window_is_flagged():
+    # from memory (NIST Chemistry WebBook): the gas-phase ionisation energy of CF4 is about
+    # 16 eV, far beyond any electrolyte's window; 1,4-dimethoxybenzene oxidises near +0.8 V vs Fc+/Fc
+    settings = ComputeSettings(role="catholyte", conformers=FAST)
+    rows = {}
+    for cid, smi in (("cf4", "FC(F)(F)F"), ("dmb", "COc1ccc(OC)cc1")):
+        cand = parse_candidate({"id": cid, "smiles": smi}, 2, settings)
+        rows[cid] = candidate_row(compute_candidate(cand, settings, None), settings)
+    assert rows["cf4"][C.potential_uncalibrated("fc")] > 5.0
+    assert rows["cf4"][C.STATUS].startswith("implausible: computed potential +")
+    assert "beyond +-5 V" in rows["cf4"][C.STATUS]
+    assert rows["dmb"][C.STATUS] == "ok" and abs(rows["dmb"][C.potential_uncalibrated("fc")]) < 2.0

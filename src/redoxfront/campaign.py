@@ -393,8 +393,17 @@ def load_campaign(path: str | Path) -> Campaign:
     toml_path = p / "campaign.toml" if p.is_dir() else p
     if not toml_path.exists():
         raise SettingsError(f"no campaign file at {toml_path}; create campaign.toml (see docs/)")
+    if not toml_path.is_file():
+        raise SettingsError(f"{toml_path} is not a regular file; give the campaign folder or its campaign.toml")
+    raw = toml_path.read_bytes()
     try:
-        data = tomllib.loads(toml_path.read_text(encoding="utf-8"))
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise SettingsError(f"{toml_path}: not UTF-8 text (byte 0x{raw[exc.start]:02x} on line {line}, perhaps "
+                            "Latin-1); TOML files are UTF-8: save it as UTF-8") from exc
+    try:
+        data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise SettingsError(f"{toml_path}: not valid TOML: {exc}") from exc
     return campaign_from_mapping(data, toml_path.parent)

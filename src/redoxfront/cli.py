@@ -90,10 +90,13 @@ def compute_command(campaign: Path, candidates: Path | None, out: Path | None, w
     camp = load_campaign(campaign)
     report = compute_campaign(camp, candidates_path=candidates, out_path=out, workers=workers,
                               dask_address=cluster, progress=not quiet, describe=not potentials_only)
-    ok = int((report.table.get("status", []) == "ok").sum()) if len(report.table) else 0
-    failed = len(report.table) - ok
+    status = report.table["status"].astype(str) if len(report.table) else None
+    ok = int((status == "ok").sum()) if status is not None else 0
+    flagged = report.table[status.str.startswith("implausible")] if status is not None else report.table
+    failed = len(report.table) - ok - len(flagged)
     click.echo(
-        f"{ok} candidates computed, {failed} failed, {len(report.problems)} input rows rejected; "
+        f"{ok} candidates computed, {failed} failed, {len(flagged)} flagged implausible, "
+        f"{len(report.problems)} input rows rejected; "
         f"{report.new_engine_calls} new engine calls in {report.wall_time_s:.1f} s"
     )
     for p in report.problems:
@@ -101,6 +104,8 @@ def compute_command(campaign: Path, candidates: Path | None, out: Path | None, w
     for o in report.outcomes:
         if o.failure:
             click.echo(f"  failed: {o.candidate.id}: {o.failure}", err=True)
+    for _, r in flagged.iterrows():
+        click.echo(f"  flagged: {r['id']}: {r['status']}", err=True)
     where = out.parent if out else camp.results_dir
     click.echo(f"written: {out or where / 'descriptors.csv'}, {where / 'geometries.sdf'}, "
                f"{where / 'input_problems.csv'}")

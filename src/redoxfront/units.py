@@ -56,6 +56,10 @@ ABSOLUTE_SHE_V: dict[str, float] = {
 # --- reference electrodes, potential vs SHE in V -------------------------------
 # SCE and Ag/AgCl (sat. KCl): Bard & Faulkner, Electrochemical Methods, 2nd ed.
 # Fc+/Fc in acetonitrile: +0.40 V vs SCE (Connelly & Geiger, Chem. Rev. 1996, 96, 877).
+PLAUSIBLE_POTENTIAL_LIMIT_V_VS_FC: float = 5.0
+"""A computed potential beyond +-5 V vs Fc+/Fc lies outside the stability window of any
+liquid electrolyte (the widest organic ones span roughly -3.5 to +2.5 V vs Fc+/Fc; from memory,
+no single source): it points to a wrong charge state or counterion, and is flagged."""
 SCE_VS_SHE_V: float = 0.241
 AGAGCL_SAT_KCL_VS_SHE_V: float = 0.197
 FC_VS_SCE_MECN_V: float = 0.40

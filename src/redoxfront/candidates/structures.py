@@ -1,24 +1,25 @@
 """Candidates: reading, validation and redox-state assignment.
 
 The SMILES of a candidate is its discharged state. Counterions written as separate
-fragments are split off (kept for the molar mass); the largest fragment is the
-redox-active molecule. The charged state has n electrons fewer (catholyte,
+fragments are split off (kept for the molar mass); the charge carrier is the largest fragment
+that is not a common salt ion, and a row whose carrier is ambiguous is rejected (see
+:func:`carrier_fragment`). The charged state has n electrons fewer (catholyte,
 oxidised when charged) or more (anolyte, reduced when charged); its spin is the
 lowest one the electron count allows (singlet or doublet).
 """
 
 from __future__ import annotations
 
-import csv
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Iterable
+from typing import Any
 
 from rdkit import Chem, RDLogger
 from rdkit.Chem import Descriptors
 
 from redoxfront.campaign import ROLES, ComputeSettings
+from redoxfront.candidates.files import SDF_SUFFIXES, csv_rows, sdf_rows
 from redoxfront.engine.records import (
     STATE_CHARGED,
     STATE_DISCHARGED,
@@ -82,6 +83,69 @@ def _clean(value: Any) -> str:
     return str(value).strip()
 
 
+COMMON_COUNTERIONS: frozenset[str] = frozenset(
+    Chem.MolToSmiles(Chem.MolFromSmiles(s)) for s in (
+        "[F-]", "[Cl-]", "[Br-]", "[I-]", "[OH-]", "F[B-](F)(F)F", "F[P-](F)(F)(F)(F)F", "[O-]Cl(=O)(=O)=O",
+        "[O-][N+](=O)[O-]", "O=S(=O)([O-])O", "O=S(=O)([O-])[O-]", "CC(=O)[O-]", "O=S(=O)([O-])C(F)(F)F",
+        "O=S(=O)(C(F)(F)F)[N-]S(=O)(=O)C(F)(F)F", "O=S(=O)(F)[N-]S(=O)(=O)F",
+        "[Li+]", "[Na+]", "[K+]", "[Rb+]", "[Cs+]", "[Mg+2]", "[Ca+2]", "[Sr+2]", "[Ba+2]", "[NH4+]",
+        "C[N+](C)(C)C", "CC[N+](CC)(CC)CC", "CCC[N+](CCC)(CCC)CCC", "CCCC[N+](CCCC)(CCCC)CCCC",
+    ))
+"""Supporting-electrolyte and salt ions (canonical SMILES) that are never the charge carrier:
+halides, hydroxide, BF4-, PF6-, ClO4-, NO3-, HSO4-, SO4(2-), acetate, triflate, TFSI-, FSI-,
+alkali and alkaline-earth cations, ammonium and the tetra-n-alkylammonium ions (C1 to C4)."""
+
+SALT_METALS: frozenset[int] = frozenset({3, 11, 19, 37, 55, 4, 12, 20, 38, 56})
+"""Alkali and alkaline-earth metals: the only metals a counterion fragment may hold."""
+
+
+def carrier_fragment(mol: Chem.Mol) -> tuple[Chem.Mol, list[Chem.Mol]]:
+    """Split a (possibly ionic) molecule into its charge carrier and its counterions.
+
+    The rule: the carrier is the largest fragment (heavy atoms) that is not a common salt ion
+    (:data:`COMMON_COUNTERIONS`); every other fragment is a counterion and must be charged,
+    smaller than the carrier and free of metals other than the alkali and alkaline-earth
+    metals. Anything else is ambiguous and raises ValueError: two fragments tie for the
+    carrier, a metal-bearing or neutral fragment besides it (a metal complex written as
+    ions, such as a metallocene, or a solvent molecule), or only salt ions.
+    """
+    frags = sorted(Chem.GetMolFrags(mol, asMols=True), key=lambda m: (-m.GetNumHeavyAtoms(), Chem.MolToSmiles(m)))
+    if len(frags) == 1:
+        return frags[0], []
+    rest = [f for f in frags if Chem.MolToSmiles(f) not in COMMON_COUNTERIONS]
+    if not rest:
+        raise ValueError("every fragment is a common salt ion; which one is the charge carrier cannot be told; "
+                         "give the redox-active molecule as one fragment")
+    carrier, others = rest[0], rest[1:]
+    name = Chem.MolToSmiles(carrier)
+    for f in others:
+        metals = sorted({a.GetSymbol() for a in f.GetAtoms()
+                         if _is_metal(a.GetAtomicNum()) and a.GetAtomicNum() not in SALT_METALS})
+        if metals:
+            raise ValueError(
+                f"ambiguous ionic SMILES: fragment '{Chem.MolToSmiles(f)}' holds {', '.join(metals)} besides "
+                f"'{name}'; a metal complex (a metallocene, say) must be written as one fragment with its "
+                "metal-ligand bonds, not as separate ions")
+    for f in others:
+        if f.GetNumHeavyAtoms() == carrier.GetNumHeavyAtoms():
+            raise ValueError(
+                f"ambiguous ionic SMILES: fragments '{name}' and '{Chem.MolToSmiles(f)}' are equally large, so "
+                "which one is the charge carrier cannot be told; give the carrier alone and its counterions "
+                "in the counterion column")
+        if Chem.GetFormalCharge(f) == 0:
+            raise ValueError(
+                f"fragment '{Chem.MolToSmiles(f)}' is neutral, so not a counterion of '{name}' (a solvent or a "
+                "second molecule?); give one molecule per row")
+    counterions = [f for f in frags if f is not carrier]
+    return carrier, counterions
+
+
+def _is_metal(z: int) -> bool:
+    """Metals by atomic number (alkali, alkaline earth, transition, lanthanides/actinides, post-transition)."""
+    nonmetals = {1, 2, 5, 6, 7, 8, 9, 10, 14, 15, 16, 17, 18, 32, 33, 34, 35, 36, 51, 52, 53, 54, 85, 86}
+    return z not in nonmetals
+
+
 def parse_candidate(
     raw: dict[str, Any], row: int, settings: ComputeSettings, source: str | None = None
 ) -> Candidate:
@@ -114,8 +178,10 @@ def parse_candidate(
             row=label, field="smiles", source=source,
         )
     mol, counterion_note = _balance_charge(mol, settings.counterion, label, source)
-    frags = sorted(Chem.GetMolFrags(mol, asMols=True), key=lambda m: (-m.GetNumHeavyAtoms(), Chem.MolToSmiles(m)))
-    main = frags[0]
+    try:
+        main, counterions = carrier_fragment(mol)
+    except ValueError as exc:
+        raise InputError(str(exc), row=label, field="smiles", source=source) from None
     heavy = main.GetNumHeavyAtoms()
     if heavy > settings.max_heavy_atoms:
         raise InputError(
@@ -137,7 +203,7 @@ def parse_candidate(
         id=cid,
         smiles=smiles,
         main_smiles=Chem.MolToSmiles(main),
-        counterions=tuple(Chem.MolToSmiles(f) for f in frags[1:]),
+        counterions=tuple(Chem.MolToSmiles(f) for f in counterions),
         role=role,
         n_electrons=n,
         molar_mass_g_per_mol=float(Descriptors.MolWt(mol)),
@@ -178,49 +244,23 @@ def _balance_charge(mol: Chem.Mol, counterion: str, label: str, source: str | No
     return salt, f"net charge {net:+d} balanced with {added} x {counterion} ([compute] counterion)"
 
 
-def _rows_from_csv(path: Path) -> Iterable[tuple[int, dict[str, Any]]]:
-    with path.open(newline="", encoding="utf-8-sig") as fh:
-        sample = fh.read(4096)
-        fh.seek(0)
-        dialect = csv.Sniffer().sniff(sample, delimiters=",;\t") if sample else csv.excel
-        reader = csv.DictReader(fh, dialect=dialect)
-        if reader.fieldnames is None or not {"id", "smiles"} <= {f.strip().lower() for f in reader.fieldnames}:
-            raise InputError(
-                f"needs columns 'id' and 'smiles'; found: {', '.join(reader.fieldnames or [])}",
-                source=str(path),
-            )
-        for i, raw in enumerate(reader, start=2):  # line 1 is the header
-            yield i, {(k or "").strip().lower() if (k or "").strip().lower() in KNOWN_COLUMNS else k: v for k, v in raw.items()}
-
-
-def _rows_from_sdf(path: Path) -> Iterable[tuple[int, dict[str, Any]]]:
-    supplier = Chem.SDMolSupplier(str(path), removeHs=False, sanitize=True)
-    for i, mol in enumerate(supplier, start=1):
-        if mol is None:
-            yield i, {"id": f"record{i}", "smiles": "<unreadable SDF record>"}
-            continue
-        props = mol.GetPropsAsDict()
-        cid = props.pop("id", None) or (mol.GetProp("_Name") if mol.HasProp("_Name") else "") or f"record{i}"
-        row = {"id": str(cid), "smiles": Chem.MolToSmiles(Chem.RemoveHs(mol))}
-        row.update({k: v for k, v in props.items() if k != "smiles"})
-        yield i, row
-
-
 def read_candidates(
     path: str | Path, settings: ComputeSettings
 ) -> tuple[list[Candidate], list[InputError]]:
     """Read candidates from CSV/TSV or SDF; return the good ones and one error per bad row.
 
-    A bad row never stops the batch. Duplicate ids: the first occurrence is kept.
+    A bad row never stops the batch. Duplicate ids: the first occurrence is kept. A file that
+    cannot be a candidates file raises one InputError naming it (see :mod:`.files`).
     """
     p = Path(path)
-    if not p.exists():
-        raise InputError("file not found", source=str(p))
-    rows = _rows_from_sdf(p) if p.suffix.lower() in (".sdf", ".sd", ".mol") else _rows_from_csv(p)
+    rows = sdf_rows(p) if p.suffix.lower() in SDF_SUFFIXES else csv_rows(p, KNOWN_COLUMNS)
     good: list[Candidate] = []
     problems: list[InputError] = []
     seen: dict[str, int] = {}
     for row, raw in rows:
+        if isinstance(raw, InputError):  # the row could not even be split into fields
+            problems.append(raw)
+            continue
         try:
             cand = parse_candidate(raw, row, settings, source=p.name)
         except InputError as exc:

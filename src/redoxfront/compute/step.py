@@ -45,7 +45,7 @@ from redoxfront.engine.records import (
 from redoxfront.engine.xtb import Engine, EngineResult, make_engine
 from redoxfront.errors import DataError, EngineError, InputError
 from redoxfront.outputs import write_csv
-from redoxfront.units import HARTREE_EV
+from redoxfront.units import HARTREE_EV, PLAUSIBLE_POTENTIAL_LIMIT_V_VS_FC, convert_potential
 
 CONFORMER_ENTRY = "conformer_ensemble"
 """Store entry (in the place of a state name) for the RDKit conformer search of a candidate."""
@@ -403,6 +403,12 @@ def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[
                                  reference=ref, user_reference_v_vs_fc=settings.user_reference_v_vs_fc))
     row[C.STATUS] = "ok"
     row[C.potential_uncalibrated(ref)] = float(np.mean(steps))
+    vs_fc = [convert_potential(e, ref, "fc", settings.user_reference_v_vs_fc) for e in steps]
+    worst = max(vs_fc, key=abs)
+    if abs(worst) > PLAUSIBLE_POTENTIAL_LIMIT_V_VS_FC:  # kept in the table, left out of every later step
+        row[C.STATUS] = (f"implausible: computed potential {worst:+.2f} V vs Fc+/Fc is beyond "
+                         f"+-{PLAUSIBLE_POTENTIAL_LIMIT_V_VS_FC:.0f} V, outside any electrolyte window; "
+                         "check the charge, counterions and role of this row")
     if len(steps) == 2:
         row[C.potential_uncalibrated(ref, 1)] = steps[0]
         row[C.potential_uncalibrated(ref, 2)] = steps[1]
