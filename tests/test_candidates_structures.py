@@ -217,7 +217,7 @@ def test_the_carrier_fragment_rule_and_ambiguous_ionic_rows():
     with pytest.raises(InputError, match=r"ambiguous ionic SMILES: fragment '\[Fe\+2\]' holds Fe.*metallocene"):
         parse_candidate({"id": "fc", "smiles": "[Fe+2].c1cc[cH-]c1.c1cc[cH-]c1"}, 2, S)
     with pytest.raises(InputError, match="equally large"):
-        parse_candidate({"id": "x", "smiles": "CC[N+](C)(C)C.CC[N+](C)(C)C.[Cl-]"}, 2, S)
+        parse_candidate({"id": "x", "smiles": "CC[N+](C)(C)C.CC[N+](C)(C)C.O=S(=O)([O-])[O-]"}, 2, S)
     with pytest.raises(InputError, match="'CCO' is neutral, so not a counterion"):
         parse_candidate({"id": "x", "smiles": "COc1ccccc1.CCO"}, 2, S)
     # a carrier with a salt anion at least as large: the carrier is the ion that is not a salt ion

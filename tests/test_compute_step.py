@@ -212,8 +212,9 @@ def test_dask_local_cluster_matches_local_run(tmp_path):
 
 def test_engine_failure_is_reported_and_batch_goes_on(tmp_path):
     # a lone proton has no electrons to give: the engine refuses it (written as a neutral
-    # salt with a hydride counterion, so the input check for unbalanced charges lets it through)
-    camp = load_campaign(_campaign(tmp_path, ["[H+].[H-]", SMALL[0]]))
+    # salt with a chloride counterion, so the input checks for unbalanced charges and for the
+    # carrier fragment let it through)
+    camp = load_campaign(_campaign(tmp_path, ["[H+].[Cl-]", SMALL[0]]))
     report = compute_campaign(camp, progress=False)
     status = list(report.table[C.STATUS])
     assert status[0].startswith("failed: discharged state: tblite GFN2-xTB failed")
