@@ -251,7 +251,8 @@ def test_folder_run_on_invented_examples_recovers_their_k(tmp_path: Path) -> Non
     out = tmp_path / "out"
     back = pd.read_csv(out / "rates.csv")
     assert back[columns.LOG10_K_FIRST].notna().sum() == 3
-    assert (out / "figures" / "fade_dmb-02.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    fig = (out / "figures" / "fade_dmb-02.svg").read_text(encoding="utf-8")
+    assert "<svg" in fig and "dmb-02: k = " in fig  # SVG by default, text kept as text
     models = pd.read_csv(out / "fade_models.csv")
     assert models.shape[0] == 12 and models["chosen"].sum() == 3
     report = (out / "fade_report.md").read_text(encoding="utf-8")

@@ -73,7 +73,7 @@ def test_run_every_step_and_report(tmp_path):
     assert "x&lt;script&gt;alert(1)&lt;/script&gt;" in html
     assert "test data made by a known rule" in html
     assert "potentials vs Fc+/Fc;" in html  # the reference as a person writes it, not its key
-    assert "data:image/png;base64," in html  # figures embedded: one self-contained file
+    assert '<svg role="img" aria-label="Trade-off front"' in html  # figures inline: one self-contained file
     assert "safety data sheets" in html
     # provenance: the engine's version and the key of the stored states are in the report
     from importlib.metadata import version

@@ -143,7 +143,8 @@ def test_calibrate_campaign_writes_files(tmp_path):
     # measured vs SCE converted to Fc: intercept 0.45 - 0.40 = 0.05 V
     assert info["lines"][0]["intercept_v"] == pytest.approx(0.05, abs=0.02)
     assert info["lines"][0]["slope"] == pytest.approx(0.9, abs=0.05)
-    assert (tmp_path / "results" / "figures" / "calibration_parity.png").stat().st_size > 1000
+    parity = (tmp_path / "results" / "figures" / "calibration_parity.svg").read_text(encoding="utf-8")
+    assert "95 % prediction band" in parity and "measured compounds" in parity
     (tmp_path / "campaign.toml").write_text('[calibration]\nper_clas = true\n')
     with pytest.raises(SettingsError, match="unknown key 'per_clas'"):
         calibrate_campaign(load_campaign(tmp_path))

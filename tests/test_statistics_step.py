@@ -78,7 +78,7 @@ def test_fit_campaign_default_terms_end_to_end(tmp_path):
     m = load_model(rep.model_path)
     X = pred.loc[:18, list(rep.terms)]
     np.testing.assert_allclose(m.predict(X), pred.loc[:18, columns.LOG10_K_PRED_FIRST], rtol=1e-12)
-    assert {p.name for p in rep.figures} == {"williams.png", "observed_vs_predicted.png", "y_randomisation.png"}
+    assert {p.name for p in rep.figures} == {"williams.svg", "observed_vs_predicted.svg", "y_randomisation.svg"}
     assert "fitted on 12 rows" in rep.text()
 
 

@@ -240,7 +240,7 @@ def rank_command(campaign: Path, quiet: bool) -> None:
                    f"P(front) {row[columns.P_FRONT]:.2f}{flag}")
     if (table[columns.POTENTIAL_BASIS] == "uncalibrated").any():
         click.echo("note: some potentials are uncalibrated (+-[cell] uncalibrated_uncertainty_v)", err=True)
-    click.echo("written: results/ranking.csv, results/picks.csv, results/figures/front.png")
+    click.echo("written: results/ranking.csv, results/picks.csv, results/figures/front.svg")
 
 
 @main.command("run")

@@ -92,7 +92,7 @@ class FadeSettings:
     initial_concentration_mol_per_l: float | None = field(default=None, metadata=bounded(1e-9, None))
     min_points: int = field(default=5, metadata=bounded(3, None))
     figures: bool = True
-    figure_format: str = field(default="png", metadata=choice("png", "svg"))
+    figure_format: str = field(default="svg", metadata=choice("svg", "png"))
 
     def __post_init__(self) -> None:
         if not self.models:

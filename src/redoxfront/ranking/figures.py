@@ -1,9 +1,14 @@
-"""Figures of the ranking: the trade-off front and a pairwise view of the objectives.
+"""Figures of the ranking: the trade-off front of the campaign's own objectives and, for
+three or more objectives, every pair of them.
 
-Both take the ranked table of :func:`redoxfront.ranking.step.rank_table` and write a PNG
-(matplotlib, Agg backend). Half-life axes are logarithmic; 95 % intervals are error
-bars; candidates whose rate prediction extrapolates (or whose potential lies outside the
-calibration range) are drawn as open diamonds instead of filled circles.
+Both take the ranked table of :func:`redoxfront.ranking.step.rank_table` and the
+objective names, and write one file (SVG or PNG by its suffix) with
+:mod:`redoxfront.figure_style`. Half-life axes are logarithmic; 95 % intervals are error
+bars. Every point's marker says how far to trust it, in every figure, with a legend:
+circle = calibrated or measured potential and a rate inside the model's domain; diamond =
+extrapolating (rate model outside its domain, or potential outside the calibration range);
+square = uncalibrated potential. Colour (probability on the first front) is never the only
+signal.
 """
 
 from __future__ import annotations
@@ -14,13 +19,20 @@ from typing import Sequence
 
 import numpy as np
 import pandas as pd
+from matplotlib.lines import Line2D
 
 from redoxfront import columns as col
 from redoxfront.figure_style import (
     ACCENT,
+    CAUTION,
     CMAP,
     INK,
+    LABEL_SIZE,
+    LEGEND_SIZE,
+    MARKERS,
     MUTED,
+    TITLE_SIZE,
+    plain_text,
     plt,
     save_figure,
     style_axes,
@@ -35,17 +47,33 @@ LABELS = {
     col.CELL_VOLTAGE: "cell voltage (V)",
     col.ENERGY_DENSITY: "energy density (Wh/L)",
     col.HALF_LIFE: "half-life of charged species (h)",
-    col.MOLAR_MASS: "molar mass incl. counterions (g/mol)",
+    col.MOLAR_MASS: "molar mass incl. counterions (g/mol), lower is better",
 }
 INTERVALS = {
     col.CELL_VOLTAGE: (col.CELL_VOLTAGE_LOW, col.CELL_VOLTAGE_HIGH),
     col.ENERGY_DENSITY: (col.ENERGY_DENSITY_LOW, col.ENERGY_DENSITY_HIGH),
     col.HALF_LIFE: (col.HALF_LIFE_LOW, col.HALF_LIFE_HIGH),
 }
+KIND_WORDS = {
+    "candidate": "calibrated or measured",
+    "extrapolating": "extrapolating (outside model domain or calibration range)",
+    "uncalibrated": "uncalibrated potential (wide interval)",
+}
+KIND_EDGE = {"candidate": INK, "extrapolating": ACCENT, "uncalibrated": CAUTION}
 
 
 def _ranked(table: pd.DataFrame) -> pd.DataFrame:
     return table[table[col.PARETO_RANK].notna()].copy()
+
+
+def trust_kind(table: pd.DataFrame) -> np.ndarray:
+    """Per row: 'extrapolating', 'uncalibrated' or 'candidate' (the marker it gets)."""
+    n = len(table)
+    extrap = (table[col.EXTRAPOLATING].astype(str).str.lower().isin(("true", "1", "yes")).to_numpy()
+              if col.EXTRAPOLATING in table else np.zeros(n, bool))
+    raw = (table[col.POTENTIAL_BASIS].astype(str).eq("uncalibrated").to_numpy()
+           if col.POTENTIAL_BASIS in table else np.zeros(n, bool))
+    return np.where(extrap, "extrapolating", np.where(raw, "uncalibrated", "candidate"))
 
 
 def _errors(sub: pd.DataFrame, column: str) -> np.ndarray | None:
@@ -55,21 +83,72 @@ def _errors(sub: pd.DataFrame, column: str) -> np.ndarray | None:
     v = sub[column].to_numpy(float)
     lo = np.clip(v - sub[pair[0]].to_numpy(float), 0, None)
     hi = np.clip(sub[pair[1]].to_numpy(float) - v, 0, None)
-    return np.vstack([lo, hi])
+    return np.vstack([np.nan_to_num(lo), np.nan_to_num(hi)])
 
 
-def _scatter(ax, sub: pd.DataFrame, xcol: str, ycol: str, colour, **kw) -> None:
-    extrap = sub[col.EXTRAPOLATING].to_numpy(bool) if col.EXTRAPOLATING in sub else np.zeros(len(sub), bool)
-    x, y = sub[xcol].to_numpy(float), sub[ycol].to_numpy(float)
-    c = np.asarray(colour)
-    c_in = c[~extrap] if c.ndim and len(c) == len(sub) else c
-    ax.scatter(x[~extrap], y[~extrap], c=c_in, marker="o", **kw)
-    if extrap.any():
-        kw2 = {k: v for k, v in kw.items() if k not in ("edgecolors", "cmap", "vmin", "vmax")}
-        ax.scatter(x[extrap], y[extrap], facecolors="none", edgecolors=ACCENT, marker="D", **{**kw2, "s": kw2.get("s", 10) * 1.6})
+def _points(ax: "plt.Axes", sub: pd.DataFrame, xcol: str, ycol: str, *, size: float,
+            coloured: bool, zorder: int = 3) -> None:
+    """Draw ``sub`` with the marker of its trust kind; filled by probability on the front
+    when ``coloured``, else grey; edge colour repeats the kind."""
+    kinds = trust_kind(sub)
+    for kind in ("candidate", "uncalibrated", "extrapolating"):
+        m = kinds == kind
+        if not m.any():
+            continue
+        part = sub[m]
+        face = dict(c=part[col.P_FRONT].to_numpy(float), cmap=CMAP, vmin=0, vmax=1) if coloured else dict(color=MUTED)
+        edge = KIND_EDGE[kind] if (coloured or kind != "candidate") else "none"
+        ax.scatter(part[xcol].to_numpy(float), part[ycol].to_numpy(float), s=size * (1.3 if kind != "candidate" else 1),
+                   marker=MARKERS[kind], edgecolors=edge, linewidths=1.1 if kind != "candidate" else 0.5,
+                   zorder=zorder, **face)
 
 
-def _label_offset(ax: plt.Axes, x: float, y: float) -> tuple[int, int, str, str]:
+def _legend(ax: "plt.Axes", kinds: set[str], extra: list[Line2D], below: bool = True) -> None:
+    """Legend of lines and marker shapes, under the axes (it never hides a point)."""
+    handles = list(extra)
+    for kind in ("candidate", "uncalibrated", "extrapolating"):
+        if kind in kinds:
+            handles.append(Line2D([], [], linestyle="none", marker=MARKERS[kind], markerfacecolor="white",
+                                  markeredgecolor=KIND_EDGE[kind], markeredgewidth=1.2, markersize=7,
+                                  label=KIND_WORDS[kind]))
+    ax.legend(handles=handles, fontsize=LEGEND_SIZE, loc="upper left", bbox_to_anchor=(0.0, -0.14),
+              ncol=2 if below else 1, frameon=False, borderaxespad=0.0)
+
+
+def _axis_pair(objectives: Sequence[str]) -> tuple[str, str]:
+    """(x objective, y objective) of the front figure: half-life on x when ranked on it."""
+    names = list(objectives)
+    if len(names) == 1:
+        return names[0], names[0]
+    if "half_life" in names:
+        other = next(n for n in names if n != "half_life")
+        return "half_life", other
+    return names[1], names[0]
+
+
+def _front_line(data: pd.DataFrame, xname: str, yname: str) -> pd.DataFrame:
+    """Rows on the first front of the two plotted objectives, sorted along x."""
+    xcol, xmax = OBJECTIVES[xname]
+    ycol, ymax = OBJECTIVES[yname]
+    x = data[xcol].to_numpy(float)
+    x = np.log10(x) if xname == "half_life" else x
+    y = data[ycol].to_numpy(float)
+    pts = np.c_[x if xmax else -x, y if ymax else -y]
+    return data[first_front_mask(pts)].sort_values(xcol)
+
+
+def _annotate(ax: "plt.Axes", data: pd.DataFrame, xcol: str, ycol: str) -> None:
+    for _, row in data[data[col.PICK_ORDER].notna()].iterrows():
+        ax.annotate(str(int(row[col.PICK_ORDER])), (row[xcol], row[ycol]), xytext=(6, 6),
+                    textcoords="offset points", fontsize=8, color=INK, fontweight="bold", zorder=5)
+    for _, row in data[data[col.KNEE].astype(str).str.lower().eq("true")].iterrows():
+        dx, dy, ha, va = _label_offset(ax, row[xcol], row[ycol])
+        ax.annotate(f"knee: {plain_text(row[col.ID])}", (row[xcol], row[ycol]), xytext=(dx, dy),
+                    textcoords="offset points", fontsize=8, color=INK, zorder=5, ha=ha, va=va,
+                    arrowprops=dict(arrowstyle="-", color=INK, linewidth=0.6))
+
+
+def _label_offset(ax: "plt.Axes", x: float, y: float) -> tuple[int, int, str, str]:
     """Offset (points) and alignment that keep a label beside (x, y) inside the axes:
     to the left of a point in the right half, below a point near the top."""
     ax.autoscale_view()
@@ -80,84 +159,84 @@ def _label_offset(ax: plt.Axes, x: float, y: float) -> tuple[int, int, str, str]
 
 
 def plot_front(table: pd.DataFrame, objectives: Sequence[str], path: str | Path) -> Path:
-    """Front figure: voltage or energy density against half-life (log scale).
+    """Front figure of the campaign's objectives (half-life on a log x axis when ranked on
+    it; one objective: value against Pareto rank).
 
-    Grey dots: all ranked candidates; coloured: first front, by probability of lying on
-    it; open diamonds: extrapolating; error bars: 95 % intervals; line: the front of the
-    two plotted objectives; the knee is labelled and picks are numbered.
+    Grey: all ranked candidates; coloured by probability on the first front: its members;
+    line: the front of the two plotted objectives; numbers: picks; the knee is labelled.
     """
-    ycol = col.ENERGY_DENSITY if "energy_density" in objectives else col.CELL_VOLTAGE
-    xcol = col.HALF_LIFE
+    xname, yname = _axis_pair(objectives)
+    xcol, ycol = OBJECTIVES[xname][0], OBJECTIVES[yname][0]
+    single = xname == yname
+    if single:
+        ycol = col.PARETO_RANK
     data = _ranked(table)
-    data = data[np.isfinite(data[xcol].astype(float)) & (data[xcol].astype(float) > 0)
-                & np.isfinite(data[ycol].astype(float))]
-    fig, ax = plt.subplots(figsize=(7.2, 5.0), dpi=150)
+    keep = np.isfinite(pd.to_numeric(data[xcol], errors="coerce")) & np.isfinite(
+        pd.to_numeric(data[ycol], errors="coerce"))
+    if xname == "half_life":
+        keep &= pd.to_numeric(data[xcol], errors="coerce") > 0
+    data = data[keep.to_numpy()]
+    fig, ax = plt.subplots(figsize=(8.0, 5.0))
     style_axes(ax)
-    ax.set_xscale("log")
+    if xname == "half_life":
+        ax.set_xscale("log")
     if len(data):
-        ax.scatter(data[xcol], data[ycol], s=6, color=MUTED, linewidths=0, rasterized=len(data) > 2000,
-                   label="candidates", zorder=1)
         first = data[data[col.PARETO_RANK] == 1]
+        rest = data[data[col.PARETO_RANK] != 1]
+        _points(ax, rest, xcol, ycol, size=16, coloured=False, zorder=2)
         shown = pd.concat([first, data[data[col.PICK_ORDER].notna()]]).drop_duplicates(subset=[col.ID])
         shown = shown.sort_values(col.P_FRONT, ascending=False).head(MAX_ERRORBARS)
-        ax.errorbar(shown[xcol], shown[ycol], xerr=_errors(shown, xcol), yerr=_errors(shown, ycol),
+        ax.errorbar(shown[xcol], shown[ycol], xerr=_errors(shown, xcol), yerr=None if single else _errors(shown, ycol),
                     fmt="none", ecolor=INK, elinewidth=0.6, alpha=0.45, capsize=1.5, zorder=2)
-        _scatter(ax, first, xcol, ycol, first[col.P_FRONT].to_numpy(float), s=28, cmap=CMAP,
-                 vmin=0, vmax=1, edgecolors=INK, linewidths=0.4, zorder=3)
-        pts = np.c_[np.log10(data[xcol].to_numpy(float)), data[ycol].to_numpy(float)]
-        front = data[first_front_mask(pts)].sort_values(xcol)
-        fx = front[xcol].to_numpy(float)
-        fy = front[ycol].to_numpy(float)
-        name = "front" if len(objectives) == 2 else "front of these two objectives"
-        ax.step(fx, fy, where="pre", color=INK, linewidth=1.0, zorder=2, label=name)
-        knee = data[data[col.KNEE]]
-        for _, row in knee.iterrows():
-            dx, dy, ha, va = _label_offset(ax, row[xcol], row[ycol])
-            ax.annotate(f"knee: {row[col.ID]}", (row[xcol], row[ycol]), xytext=(dx, dy),
-                        textcoords="offset points", fontsize=8, color=INK, ha=ha, va=va,
-                        arrowprops=dict(arrowstyle="-", color=INK, linewidth=0.6))
-        for _, row in data[data[col.PICK_ORDER].notna()].iterrows():
-            ax.annotate(str(int(row[col.PICK_ORDER])), (row[xcol], row[ycol]), xytext=(-8, 5),
-                        textcoords="offset points", fontsize=7, color=ACCENT, fontweight="bold")
+        _points(ax, first, xcol, ycol, size=40, coloured=True, zorder=3)
+        extra = [Line2D([], [], linestyle="none", marker="o", color=MUTED, markersize=5, label="grey fill: not on the first front")]
+        if not single:
+            line = _front_line(data, xname, yname)
+            ax.step(line[xcol], line[ycol], where="post" if OBJECTIVES[yname][1] != OBJECTIVES[xname][1] else "pre",
+                    color=INK, linewidth=1.0, zorder=2)
+            extra.insert(0, Line2D([], [], color=INK, linewidth=1.0, label="first front"))
+        else:
+            ax.invert_yaxis()
+        _annotate(ax, data, xcol, ycol)
+        extra.append(Line2D([], [], linestyle="none", marker="$1$", color=INK, markersize=7, label="pick (order)"))
+        _legend(ax, set(trust_kind(data)), extra)
         sm = plt.cm.ScalarMappable(cmap=CMAP, norm=plt.Normalize(0, 1))
         cb = fig.colorbar(sm, ax=ax, pad=0.02, fraction=0.04)
-        cb.set_label("probability on first front", fontsize=8, color=INK)
+        cb.set_label("probability on first front (fill)", fontsize=LABEL_SIZE, color=INK)
         cb.ax.tick_params(labelsize=7)
-        ax.scatter([], [], facecolors="none", edgecolors=ACCENT, marker="D", label="extrapolating")
-        ax.legend(frameon=False, fontsize=8, loc="best")
     else:
         ax.text(0.5, 0.5, "no ranked candidates", transform=ax.transAxes, ha="center", color=INK)
-    ax.set_xlabel(LABELS[xcol], fontsize=9, color=INK)
-    ax.set_ylabel(LABELS[ycol], fontsize=9, color=INK)
-    basis = set(table.get(col.POTENTIAL_BASIS, pd.Series(dtype=str)).dropna().astype(str)) - {""}
-    note = " (uncalibrated potentials)" if "uncalibrated" in basis else ""
-    ax.set_title("Trade-off front" + note, fontsize=11, color=INK, loc="left")
-    return save_figure(fig, path, dpi=150)
+    ax.set_xlabel(LABELS.get(xcol, xcol), fontsize=LABEL_SIZE, color=INK)
+    ax.set_ylabel("Pareto rank (front number)" if single else LABELS.get(ycol, ycol), fontsize=LABEL_SIZE, color=INK)
+    ax.set_title("Trade-off front", fontsize=TITLE_SIZE + 1, color=INK, loc="left")
+    return save_figure(fig, path, crop=True)
 
 
 def plot_pairwise(table: pd.DataFrame, objectives: Sequence[str], path: str | Path) -> Path:
-    """One panel per pair of objectives, points coloured by probability on the front,
-    first-front points outlined, extrapolating ones as open diamonds."""
+    """One panel per pair of objectives, filled by probability on the front, first-front
+    points drawn large; marker shapes as in :func:`plot_front`, legend below."""
     cols_ = [OBJECTIVES[o][0] for o in objectives]
     pairs = list(combinations(range(len(cols_)), 2)) or [(0, 0)]
-    fig, axes = plt.subplots(1, len(pairs), figsize=(3.6 * len(pairs) + 0.8, 3.6), dpi=150, squeeze=False)
-    data = _ranked(table)
-    order = data.sort_values(col.P_FRONT)
+    fig, axes = plt.subplots(1, len(pairs), figsize=(3.9 * len(pairs) + 0.8, 4.2), squeeze=False)
+    data = _ranked(table).sort_values(col.P_FRONT)
     for ax, (a, b) in zip(axes[0], pairs):
         style_axes(ax)
         xcol, ycol = cols_[a], cols_[b]
-        if len(order):
-            _scatter(ax, order, xcol, ycol, order[col.P_FRONT].to_numpy(float), s=10, cmap=CMAP,
-                     vmin=0, vmax=1, edgecolors="none", linewidths=0, rasterized=len(order) > 2000)
-            first = order[order[col.PARETO_RANK] == 1]
-            ax.scatter(first[xcol], first[ycol], s=22, facecolors="none", edgecolors=INK, linewidths=0.6)
+        if len(data):
+            first = data[data[col.PARETO_RANK] == 1]
+            _points(ax, data[data[col.PARETO_RANK] != 1], xcol, ycol, size=12, coloured=False, zorder=2)
+            _points(ax, first, xcol, ycol, size=30, coloured=True, zorder=3)
         for c_, setter in ((xcol, ax.set_xscale), (ycol, ax.set_yscale)):
             if c_ == col.HALF_LIFE:
                 setter("log")
-        ax.set_xlabel(LABELS.get(xcol, xcol), fontsize=8, color=INK)
-        ax.set_ylabel(LABELS.get(ycol, ycol), fontsize=8, color=INK)
+        ax.set_xlabel(LABELS.get(xcol, xcol), fontsize=LABEL_SIZE - 1, color=INK)
+        ax.set_ylabel(LABELS.get(ycol, ycol), fontsize=LABEL_SIZE - 1, color=INK)
+    if len(data):
+        _legend(axes[0][0], set(trust_kind(data)),
+                [Line2D([], [], linestyle="none", marker="o", color=MUTED, markersize=5, label="not on the first front")],
+                below=True)
     sm = plt.cm.ScalarMappable(cmap=CMAP, norm=plt.Normalize(0, 1))
     cb = fig.colorbar(sm, ax=list(axes[0]), pad=0.02, fraction=0.03)
-    cb.set_label("probability on first front", fontsize=8, color=INK)
-    fig.suptitle("Objectives pairwise (outlined: first front)", fontsize=10, color=INK, x=0.02, ha="left")
-    return save_figure(fig, path, dpi=150, crop=True)
+    cb.set_label("probability on first front (fill)", fontsize=LABEL_SIZE - 1, color=INK)
+    fig.suptitle("Objectives pairwise (large: first front)", fontsize=TITLE_SIZE, color=INK, x=0.02, ha="left")
+    return save_figure(fig, path, crop=True)

@@ -282,6 +282,7 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
     from redoxfront.ranking.figures import plot_front, plot_pairwise
 
     fig_dir = out_dir / "figures"
-    plot_front(result.table, result.objectives, fig_dir / "front.png")
-    plot_pairwise(result.table, result.objectives, fig_dir / "objectives_pairwise.png")
+    plot_front(result.table, result.objectives, fig_dir / "front.svg")
+    if len(result.objectives) > 2:  # with two, the front figure is the only pair
+        plot_pairwise(result.table, result.objectives, fig_dir / "objectives_pairwise.svg")
     return result.table

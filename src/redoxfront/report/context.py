@@ -213,9 +213,11 @@ def front_section(res: Path, summary: dict[str, Any]) -> dict[str, Any]:
     figs = [f for f in (
         figure(res, "front", "Trade-off front",
                "Each point is a candidate; the line joins the first front of the two objectives drawn. "
-               "Bars are 95 % intervals. Marker shapes say which values to trust less (see the legend)."),
+               "Bars are 95 % intervals; numbers are the picks. Marker shapes say which values to trust "
+               "less (see the legend)."),
         figure(res, "objectives_pairwise", "Objectives pairwise",
-               "Every pair of objectives; colour: probability of lying on the first front."),
+               "Every pair of objectives; fill: probability of lying on the first front; marker shapes "
+               "as in the front figure.") if len(objectives) > 2 else None,
     ) if f]
     return {"objectives": [narrative.OBJECTIVE_WORDS.get(o, o) for o in objectives],
             "n_ranked": summary.get("n_ranked"), "n_candidates": summary.get("n_candidates"),

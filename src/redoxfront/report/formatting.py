@@ -243,6 +243,7 @@ def cell(row: Mapping[str, Any], column: Column) -> dict[str, Any]:
     if column.low and column.high:
         lo, hi = row.get(column.low), row.get(column.high)
         if as_float(lo) is not None and as_float(hi) is not None and text:
-            interval = f"{number(lo, column.kind, column.digits)} to {number(hi, column.kind, column.digits)}"
+            lo_text, hi_text = number(lo, column.kind, column.digits), number(hi, column.kind, column.digits)
+            interval = "" if lo_text == hi_text == text else f"{lo_text} to {hi_text}"
     v = as_float(value)
     return {"text": text, "interval": interval, "sort": "" if v is None else repr(v), "numeric": True}

@@ -75,7 +75,7 @@ def _with_interval(rec: Mapping[str, Any], key: str, low: str, high: str, kind: 
     if not value:
         return ""
     lo, hi = F.number(rec.get(low), kind, digits), F.number(rec.get(high), kind, digits)
-    text = f"{value} ({lo}–{hi})" if lo and hi else value
+    text = f"{value} ({lo}–{hi})" if lo and hi and not lo == hi == value else value
     return f"{text} {unit}" if unit else text
 
 
@@ -86,7 +86,7 @@ def _basis_words(rec: Mapping[str, Any]) -> str:
 
 def _interval(rec: Mapping[str, Any], low: str, high: str, kind: str, digits: int) -> str:
     lo, hi = F.number(rec.get(low), kind, digits), F.number(rec.get(high), kind, digits)
-    return f"({lo}–{hi})" if lo and hi else ""
+    return f"({lo}–{hi})" if lo and hi and lo != hi else ""
 
 
 def card_facts(rec: Mapping[str, Any], r: str, objectives: list[str] | tuple[str, ...] = ()) -> list[dict[str, str]]:

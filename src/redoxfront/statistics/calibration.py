@@ -304,7 +304,7 @@ def calibrate_table(
 
 def calibrate_campaign(campaign: Campaign) -> pd.DataFrame:
     """Calibrate ``results/descriptors.csv`` in place; write ``results/calibration.json``
-    and ``results/figures/calibration_parity.png``. Returns the updated table."""
+    and ``results/figures/calibration_parity.svg``. Returns the updated table."""
     settings = section_from_mapping(CalibrationSettings, campaign.section("calibration"), "calibration")
     ref = reference_key(campaign.compute.reference)
     path = campaign.results_dir / "descriptors.csv"
@@ -329,9 +329,14 @@ def calibrate_campaign(campaign: Campaign) -> pd.DataFrame:
         line = report.lines[0]
         meas_col = columns.potential_measured(ref)
         used = out[out[meas_col].notna() & out[columns.CALIBRATION_STATUS].ne(STATUS_UNCALIBRATED)]
+        same = out[out[columns.CALIBRATION_GROUP].astype(str).eq(line.group)] if columns.CALIBRATION_GROUP in out else out
         calibration_parity(
             used[columns.potential_uncalibrated(ref)].to_numpy(float), used[meas_col].to_numpy(float),
-            line.slope, line.intercept_v, ref, campaign.results_dir / "figures" / "calibration_parity.png",
+            line.slope, line.intercept_v, ref, campaign.results_dir / "figures" / "calibration_parity.svg",
             labels=used[columns.ID].tolist(),
+            candidates_v=same[columns.potential_uncalibrated(ref)].to_numpy(float),
+            band_low_v=same[columns.potential_calibrated_pi_low(ref)].to_numpy(float),
+            band_high_v=same[columns.potential_calibrated_pi_high(ref)].to_numpy(float),
+            calibrated_range_v=(line.computed_min_v, line.computed_max_v),
         )
     return out

@@ -1,4 +1,5 @@
-"""Plots of the calibration and the rate model (matplotlib, Agg backend, PNG).
+"""Plots of the calibration and the rate model (matplotlib via :mod:`redoxfront.figure_style`;
+SVG or PNG by the file's suffix).
 
 Williams plot: standardised residual against leverage with h* = 3(p+1)/n and
 +/-3 residual lines (Tropsha, Mol. Inf. 2010, 29, 476). Each function writes one
@@ -16,7 +17,10 @@ from redoxfront.figure_style import (
     ACCENT,
     INK,
     LEGEND_SIZE,
+    MARKERS,
+    MUTED,
     SERIES,
+    plain_text,
     plt,
     save_figure,
     style_axes,
@@ -37,23 +41,55 @@ def calibration_parity(
     reference: str,
     path: str | Path,
     labels: Sequence[str] | None = None,
+    candidates_v: np.ndarray | None = None,
+    band_low_v: np.ndarray | None = None,
+    band_high_v: np.ndarray | None = None,
+    calibrated_range_v: tuple[float, float] | None = None,
 ) -> Path:
-    """Measured against computed potential with the fitted calibration line, V."""
-    fig, ax = plt.subplots(figsize=(4.8, 4.4))
-    x = np.asarray(computed_v, float)
-    y = np.asarray(measured_v, float)
-    ax.scatter(x, y, s=22, color=SERIES[0], label="measured")
-    xs = np.linspace(x.min(), x.max(), 50)
-    ax.plot(xs, intercept + slope * xs, color=ACCENT, label=f"fit: {intercept:.3f} + {slope:.3f} x")
-    if labels is not None and len(labels) <= 30:
-        for xi, yi, t in zip(x, y, labels):
-            ax.annotate(str(t), (xi, yi), fontsize=6, xytext=(2, 2), textcoords="offset points")
+    """Measured against computed potential with the fitted calibration line, V.
+
+    ``candidates_v`` with ``band_low_v``/``band_high_v``: every candidate's computed
+    potential and the 95 % prediction interval of its calibrated value, drawn as the band
+    around the line; candidates whose computed potential lies outside ``calibrated_range_v``
+    (the measured compounds' range) are marked as extrapolating diamonds on the line.
+    """
     from redoxfront.units import reference_label
 
+    fig, ax = plt.subplots(figsize=(5.6, 4.6))
+    x = np.asarray(computed_v, float)
+    y = np.asarray(measured_v, float)
+    xs_all = [x]
+    if candidates_v is not None and band_low_v is not None and band_high_v is not None:
+        cx = np.asarray(candidates_v, float)
+        lo, hi = np.asarray(band_low_v, float), np.asarray(band_high_v, float)
+        ok = np.isfinite(cx) & np.isfinite(lo) & np.isfinite(hi)
+        order = np.argsort(cx[ok])
+        ax.fill_between(cx[ok][order], lo[ok][order], hi[ok][order], color=SERIES[4], alpha=0.25,
+                        linewidth=0, label="95 % prediction band")
+        fitted = intercept + slope * cx[ok]
+        if calibrated_range_v is not None:
+            out = (cx[ok] < calibrated_range_v[0]) | (cx[ok] > calibrated_range_v[1])
+        else:
+            out = np.zeros(ok.sum(), bool)
+        ax.scatter(cx[ok][~out], fitted[~out], s=12, marker=MARKERS["candidate"], color=MUTED, zorder=2,
+                   label="candidates (calibrated value)")
+        if out.any():
+            ax.scatter(cx[ok][out], fitted[out], s=26, marker=MARKERS["extrapolating"], facecolors="white",
+                       edgecolors=ACCENT, linewidths=1.1, zorder=3,
+                       label="candidates outside the calibration range")
+        xs_all.append(cx[ok])
+    ax.scatter(x, y, s=26, color=SERIES[0], zorder=4, label="measured compounds")
+    allx = np.concatenate(xs_all)
+    xs = np.linspace(np.nanmin(allx), np.nanmax(allx), 50)
+    ax.plot(xs, intercept + slope * xs, color=INK, linewidth=1.2, zorder=3,
+            label=f"fit: {intercept:.3f} V + {slope:.3f} × computed")
+    if labels is not None and len(labels) <= 30:
+        for xi, yi, t in zip(x, y, labels):
+            ax.annotate(plain_text(t), (xi, yi), fontsize=6, xytext=(3, -8), textcoords="offset points", color=INK)
     label = reference_label(reference)
     ax.set_xlabel(f"computed potential (uncalibrated), V vs {label}")
-    ax.set_ylabel(f"measured potential, V vs {label}")
-    ax.legend(fontsize=LEGEND_SIZE)
+    ax.set_ylabel(f"measured or calibrated potential, V vs {label}")
+    ax.legend(fontsize=LEGEND_SIZE - 1, loc="upper left")
     return _save(fig, path)
 
 
@@ -87,12 +123,12 @@ def y_randomisation_histogram(
     q2s = np.asarray(q2_scrambled, float)
     lo = float(min(np.nanmin(q2s), q2, 0.0))
     bins = np.linspace(lo, 1.0, 40)
-    ax.hist(np.clip(r2_scrambled, lo, 1), bins=bins, alpha=0.6, color=SERIES[0], label="scrambled R2")
-    ax.hist(np.clip(q2s, lo, 1), bins=bins, alpha=0.6, color=SERIES[1], label="scrambled Q2 (LOO)")
-    ax.axvline(r2, color=SERIES[0], lw=2, label=f"model R2 = {r2:.3f}")
-    ax.axvline(q2, color=SERIES[1], lw=2, ls="--", label=f"model Q2 = {q2:.3f}")
-    ax.set_xlabel("R2 / Q2")
-    ax.set_ylabel("permutations")
+    ax.hist(np.clip(r2_scrambled, lo, 1), bins=bins, alpha=0.6, color=SERIES[0], label="scrambled R²")
+    ax.hist(np.clip(q2s, lo, 1), bins=bins, alpha=0.6, color=SERIES[1], label="scrambled Q² (LOO)")
+    ax.axvline(r2, color=SERIES[0], lw=2, label=f"model R² = {r2:.3f}")
+    ax.axvline(q2, color=SERIES[1], lw=2, ls="--", label=f"model Q² = {q2:.3f}")
+    ax.set_xlabel("R² or Q² of a model fitted to scrambled rates")
+    ax.set_ylabel("number of scrambled models")
     ax.legend(fontsize=7)
     return _save(fig, path)
 

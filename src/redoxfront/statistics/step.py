@@ -323,7 +323,7 @@ def fit_campaign(campaign: Any) -> FitReport:
     fig_dir = out_dir / "figures"
     figs = [
         model_plots.williams_plot(
-            model.hat_, model.standardised_resid_, model.leverage_threshold_, fig_dir / "williams.png",
+            model.hat_, model.standardised_resid_, model.leverage_threshold_, fig_dir / "williams.svg",
             test_leverage=pi.loc[test.index, "leverage"].to_numpy() if len(test) else None,
             test_residual=(
                 (test[target].to_numpy(float) - pi.loc[test.index, "prediction"].to_numpy())
@@ -331,7 +331,8 @@ def fit_campaign(campaign: Any) -> FitReport:
             ) if len(test) else None,
         ),
         model_plots.observed_vs_predicted(
-            model.y_, model.fitted_, fig_dir / "observed_vs_predicted.png", label=target,
+            model.y_, model.fitted_, fig_dir / "observed_vs_predicted.svg",
+            label="log10 k (k in 1/h)" if target == columns.LOG10_K_FIRST else "log10 k (k in L/(mol h))",
             observed_test=test[target].to_numpy(float) if len(test) else None,
             predicted_test=pi.loc[test.index, "prediction"].to_numpy() if len(test) else None,
             loo_predicted_train=model.y_ - model.loo_resid_,
@@ -340,7 +341,7 @@ def fit_campaign(campaign: Any) -> FitReport:
     if model.y_randomisation_ is not None:
         yr = model.y_randomisation_
         figs.append(model_plots.y_randomisation_histogram(
-            yr.r2, yr.q2, model.r2_, model.q2_loo_, fig_dir / "y_randomisation.png"))
+            yr.r2, yr.q2, model.r2_, model.q2_loo_, fig_dir / "y_randomisation.svg"))
     return FitReport(
         terms=tuple(terms), target=target, coefficients=model.coefficient_table(),
         statistics=model.statistics(), external=external, search=search_summary,
