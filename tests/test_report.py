@@ -129,3 +129,17 @@ def test_model_domain_badge_left_out_when_the_rate_was_measured():
     row = {C.POTENTIAL_BASIS: "measured", C.DOMAIN: "extrapolating", C.RATE_BASIS: "measured",
            C.CALIBRATION_STATUS: "calibrated (outside calibration range)"}
     assert [b["text"] for b in F.badges(row)] == ["measured potential", "rate measured"]
+
+
+def test_window_flag_shows_its_own_words_as_a_warning():
+    # free-text flags from the ranking keep their words (common practice, no source)
+    row = {C.WINDOW_FLAG: "may be outside the window: above the oxidation limit 2.50 V (acetonitrile)"}
+    assert F.badges(row) == [{"text": "electrolyte window: may be outside the window: above the oxidation limit "
+                                      "2.50 V (acetonitrile)", "style": "warn"}]
+
+
+def test_demo_assumptions_state_the_window_checked(demo_results):
+    html = _html(demo_results)
+    summary = json.loads((demo_results / "results" / "ranking_summary.json").read_text())
+    window = summary["electrochemical_window"]
+    assert f"<dt>Electrolyte window</dt><dd>{window['low_v']:.2f} to {window['high_v']:.2f} V vs Fc+/Fc" in html

@@ -125,6 +125,9 @@ class Flag:
 
     key: str
     badges: Mapping[Any, tuple[str, str] | None] = field(default_factory=dict)
+    other: tuple[str, str] | None = None
+    """(prefix, style) of a badge for a value not listed: the prefix then the value itself
+    (for free-text flags such as the window flag); unset = neutral, named by the column."""
     unless: tuple[tuple[str, frozenset[str]], ...] = ()
     """No badge when another column of the row holds one of these values (e.g. the model's
     domain does not matter for a candidate whose rate was measured)."""
@@ -145,7 +148,8 @@ FLAGS: tuple[Flag, ...] = (
         "uncalibrated": None,  # said by the potential basis
         "calibrated (outside calibration range)": ("outside calibration range", "warn"),
     }, unless=_OWN_POTENTIAL),
-    Flag(C.POTENTIAL_FLAG, {"": None}),
+    Flag(C.POTENTIAL_FLAG, {"": None}, other=("", "warn")),
+    Flag(C.WINDOW_FLAG, {"": None}, other=("electrolyte window: ", "warn")),
     Flag(C.RATE_BASIS, {
         "measured": ("rate measured", "good"),
         "fitted": ("rate fitted from cycling", "good"),
@@ -196,6 +200,8 @@ def badges(row: Mapping[str, Any], flags: tuple[Flag, ...] = FLAGS) -> list[dict
             text, style = found
         elif value == "" or value is False:
             continue
+        elif flag.other is not None:
+            text, style = f"{flag.other[0]}{value}", flag.other[1]
         else:
             text, style = (flag.key.replace("_", " ") if value is True else f"{flag.key.replace('_', ' ')}: {value}"), "info"
         out.append({"text": text, "style": style})

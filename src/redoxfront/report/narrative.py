@@ -41,8 +41,9 @@ LIMITATIONS: tuple[str, ...] = (
     "Capacity and energy density are theoretical: every molecule at the stated concentration "
     "carries its electrons, at the stated utilisation. Solubility of both redox states, "
     "viscosity and conductivity are not predicted; check them by experiment.",
-    "The electrolyte's stability window is not checked: make sure both couples lie inside the "
-    "window of the solvent and salt you use.",
+    "The electrolyte's stability window is a typical value for the solvent (or the campaign's "
+    "own setting); the real window depends on electrode, salt and water content. Check both "
+    "couples against the window of the electrolyte you use.",
     "The probability of lying on the front treats each candidate's interval as independent. "
     "Errors shared by a whole series (one calibration line, one model) move candidates together, "
     "so the ranking among close relatives is firmer than the absolute values.",
@@ -328,7 +329,7 @@ def assumptions(campaign: Campaign, cell: Any, desc: pd.DataFrame | None,
         ("Tank basis", tank),
         ("Utilisation", f"{cell.utilisation * 100:g} % of the theoretical charge"),
         ("Solvent", "none (gas phase)" if s.solvent == "none" else f"{s.solvent} (ALPB implicit solvent)"),
-        ("Electrolyte window", "not checked by this tool: check both couples against your solvent and salt"),
+        ("Electrolyte window", window_words(summary, r)),
         ("Reference electrode", f"potentials vs {r}; conversions: {conv}"),
         ("Uncalibrated potentials", (f"given a 95 % interval of ±{cell.uncalibrated_uncertainty_v:g} V ([cell] "
                                      "uncalibrated_uncertainty_v)") if cell.uncalibrated_uncertainty_v is not None else
@@ -342,6 +343,19 @@ def assumptions(campaign: Campaign, cell: Any, desc: pd.DataFrame | None,
     if summary.get("objectives"):
         items.append(("Ranked on", ", ".join(OBJECTIVE_WORDS.get(o, o) for o in summary["objectives"])))
     return [{"label": a, "value": b} for a, b in items]
+
+
+def window_words(summary: Mapping[str, Any], r: str) -> str:
+    """The electrolyte window the ranking checked potentials against, and how many fell outside."""
+    window = summary.get("electrochemical_window")
+    if not window:
+        return "not checked (no window known for this solvent; set [cell] window_low_v and window_high_v)"
+    n_out = summary.get("n_outside_window")
+    text = (f"{F.fixed(window.get('low_v'), 2)} to {F.fixed(window.get('high_v'), 2)} V vs {r} "
+            f"({window.get('source', '')}); approximate: it depends on electrode, salt and water content")
+    if n_out:
+        text += f"; {n_out} candidate(s) flagged as (possibly) outside it"
+    return text
 
 
 def why_no_picks(campaign: Campaign, ranked: bool, res: Path) -> str:
