@@ -270,3 +270,56 @@ def test_per_cycle_restart_of_cycle_and_time_keeps_one_cycle_duration(tmp_path) 
     assert "2 blank rows skipped" in text
     assert "1 values of 'Q discharge/mAh' are not numbers (e.g. 'n/a')" in text
     assert s.table[USED].sum() == 10
+
+
+def _per_cycle(n: int = 30, k: float = 0.01, q0: float = 10.0) -> pd.DataFrame:
+    cyc = np.arange(1, n + 1)
+    return pd.DataFrame({"Cycle": cyc, "Time [h]": cyc * 1.0, "Discharge Capacity [mAh]": q0 * np.exp(-k * cyc)})
+
+
+def test_rows_out_of_order_are_sorted_with_a_note_not_read_as_restarts(tmp_path) -> None:
+    df = _per_cycle()
+    shuffled = df.iloc[np.random.default_rng(1).permutation(len(df))]
+    path = tmp_path / "shuffled.csv"
+    shuffled.to_csv(path, index=False)
+    s = load_series(path)
+    np.testing.assert_allclose(s.table[TIME_H], df["Time [h]"])  # the original order back
+    np.testing.assert_allclose(s.table[SIGNAL], df["Discharge Capacity [mAh]"], rtol=1e-12)
+    text = "\n".join(s.report)
+    assert "rows out of order" in text and "sorted by cycle" in text
+    assert "fell back" not in text  # not read as counter resets
+
+
+def test_degenerate_datasets_and_every_sheet_of_a_workbook(tmp_path) -> None:
+    from redoxfront.fade.step import fit_fade_folder
+
+    data = tmp_path / "cycling"
+    data.mkdir()
+    const = _per_cycle()
+    const["Time [h]"] = 5.0
+    const.to_csv(data / "one_time.csv", index=False)
+    zeros = _per_cycle()
+    zeros["Discharge Capacity [mAh]"] = 0.0
+    zeros.to_csv(data / "zeros.csv", index=False)
+    with pd.ExcelWriter(data / "two_cells.xlsx", engine="openpyxl") as xw:
+        _per_cycle(k=0.01).to_excel(xw, sheet_name="cell A", index=False)
+        _per_cycle(k=0.03, q0=20.0).to_excel(xw, sheet_name="cell B", index=False)
+        pd.DataFrame({"Info": ["invented test data"]}).to_excel(xw, sheet_name="notes", index=False)
+    rates = fit_fade_folder(data, None, tmp_path / "out", progress=False).set_index("id")
+    assert rates.loc["one_time", "status"].startswith("error: ") and "all 30 usable points are at one time" \
+        in rates.loc["one_time", "status"]
+    assert "the signal is zero (or missing) at all 30 points" in rates.loc["zeros", "status"]
+    # first-order fade q = q0 exp(-k t): k_fade equals the invented k (common practice, no source)
+    assert rates.loc["two_cells:cell A", "status"] == "ok" and rates.loc["two_cells:cell B", "status"] == "ok"
+    assert rates.loc["two_cells:cell A", "k_fade_per_h"] == pytest.approx(0.01, rel=1e-6)
+    assert rates.loc["two_cells:cell B", "k_fade_per_h"] == pytest.approx(0.03, rel=1e-6)
+    report = (tmp_path / "out" / "fade_report.md").read_text()
+    assert "sheet(s) 'notes' hold no capacity or decay column and were not fitted" in report
+
+
+def test_ids_in_a_cycling_file_stay_text(tmp_path) -> None:
+    df = _per_cycle()
+    df.insert(0, "Sample ID", "007")
+    path = tmp_path / "cell.csv"
+    df.to_csv(path, index=False)
+    assert load_series(path).dataset_id == "007"

@@ -155,3 +155,19 @@ def test_fitted_and_measured_rates_both_train_the_model_measured_wins(tmp_path):
     import json
     model = json.loads(rep.model_path.read_text())
     assert model["context"]["rate_sources"]["counts"] == {"measured": 12, "fitted": 2}
+
+
+def test_an_infinite_rate_is_left_out_like_a_missing_one(tmp_path):
+    # k = 0 gives log10 k = -inf and an overflow gives +inf: neither is a value to fit
+    # (IEEE 754: inf is not a finite number; common practice, no source)
+    folder = make_campaign(tmp_path, model_toml="[model]\nn_permutations = 100\n", n=12)
+    rates = pd.read_csv(folder / "inputs" / "rates.csv", dtype={"id": str})
+    rates[columns.LOG10_K_FIRST] = rates[columns.LOG10_K_FIRST].astype(object)
+    rates.loc[0, columns.LOG10_K_FIRST] = "inf"
+    rates.loc[1, columns.LOG10_K_FIRST] = "-inf"
+    rates.loc[2, columns.LOG10_K_FIRST] = "NaN"
+    rates.to_csv(folder / "inputs" / "rates.csv", index=False)
+    rep = fit_campaign(load_campaign(folder))
+    assert rep.n_train == 9 and np.isfinite(rep.statistics["r2"])
+    assert any("infinite, left out like missing ones: dmb-00, dmb-01" in n for n in rep.notes)
+    assert any("without a value, left out: dmb-02" in n for n in rep.notes)

@@ -189,13 +189,17 @@ def _list(headers: list[str]) -> str:
 
 
 def read_table(path: Path) -> list[pd.DataFrame]:
-    """Read a CSV/TSV/TXT (delimiter and decimal comma sniffed) or every sheet of an XLSX file."""
+    """Read a CSV/TSV/TXT (delimiter and decimal comma sniffed) or every sheet of an XLSX file.
+
+    Each table's ``attrs["sheet"]`` names its sheet (None for a text file)."""
     suffix = path.suffix.lower()
     if suffix in (".xlsx", ".xlsm"):
         try:
             sheets = pd.read_excel(path, sheet_name=None, engine="openpyxl")
         except Exception as exc:  # openpyxl raises many kinds for broken files
             raise InputError(f"cannot read the Excel file: {exc}", source=str(path)) from exc
+        for name, s in sheets.items():
+            s.attrs["sheet"] = str(name)
         return [s for s in sheets.values() if not s.empty] or [pd.DataFrame()]
     if suffix == ".xls":
         raise InputError("old-style .xls files are not read; save the sheet as .xlsx or CSV",
@@ -217,10 +221,34 @@ def read_table(path: Path) -> list[pd.DataFrame]:
     from io import StringIO
 
     try:
-        return [pd.read_csv(StringIO(text), sep=sep, decimal=decimal, skip_blank_lines=False,
-                            keep_default_na=False, na_values=[""])]
+        header = pd.read_csv(StringIO(text), sep=sep, nrows=0).columns
+        ids = {h: str for h in header if role_of(str(h)) == "id"}  # '001' stays '001'
+        table = pd.read_csv(StringIO(text), sep=sep, decimal=decimal, skip_blank_lines=False,
+                            keep_default_na=False, na_values=[""], dtype=ids)
+        table.attrs["sheet"] = None
+        return [table]
     except (pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
         raise InputError(f"cannot read as a {sep!r}-separated table: {exc}", source=str(path)) from exc
+
+
+def _has_data(cols: Mapping[str, Any]) -> bool:
+    return any(r in cols for r in ("charge_capacity", "discharge_capacity", "capacity", *DECAY_ROLES))
+
+
+def data_sheets(path: Path, column_map: Mapping[str, str] | None = None) -> tuple[list[str], list[str]]:
+    """Sheets of a workbook: (those with a capacity or decay column, the other non-empty ones).
+
+    Every data sheet is a dataset of its own; the others are named in the report as not used.
+    A text file has no sheets: ([], [])."""
+    if path.suffix.lower() not in (".xlsx", ".xlsm"):
+        return [], []
+    data, other = [], []
+    for table in read_table(path):
+        name = table.attrs.get("sheet")
+        if name is None:
+            continue
+        (data if _has_data(detect_columns([str(h) for h in table.columns], column_map, str(path))) else other).append(name)
+    return data, other
 
 
 def resolve_unit(header_unit: str | None, setting: str | None, header: str, setting_name: str,
@@ -297,22 +325,30 @@ def load_series(
     skip_first_cycles: int = 0,
     drop_spikes: bool = True,
     spike_threshold: float = 6.0,
+    sheet: str | None = None,
 ) -> SeriesData:
     """Read one cycler or decay file into a per-cycle (or per-sample) table with a hygiene report.
 
     Times in h, capacities in mAh. Raises InputError (file, headers found, the
     ``[fade] column_map`` key to set) when the needed columns are not recognised.
+    ``sheet``: the workbook sheet to read (see :func:`data_sheets`); default the first
+    sheet with data columns.
     """
     p = Path(path)
     source = str(p)
     if not p.exists():
         raise InputError("file not found", source=source)
     sheets = read_table(p)
+    if sheet is not None:
+        sheets = [s for s in sheets if s.attrs.get("sheet") == sheet]
+        if not sheets:
+            raise InputError(f"no sheet named '{sheet}'", source=source)
+        source = f"{source} (sheet '{sheet}')"
     df, cols = sheets[0], {}
-    for sheet in sheets:
-        c = detect_columns([str(h) for h in sheet.columns], column_map, source)
-        if any(r in c for r in ("charge_capacity", "discharge_capacity", "capacity", *DECAY_ROLES)):
-            df, cols = sheet, c
+    for table in sheets:
+        c = detect_columns([str(h) for h in table.columns], column_map, source)
+        if _has_data(c):
+            df, cols = table, c
             break
     headers = [str(h) for h in df.columns]
     df.columns = headers
@@ -368,6 +404,7 @@ def load_series(
         report.append(f"{int(missing.sum())} rows with a missing or non-numeric cycle or time "
                       "dropped")
         df = df[~missing].copy()
+    df = _sort_out_of_order(df, "_cycle", "cycle", report)
     df["_cycle"] = fix_counter_resets(df["_cycle"], "cycle counter", report, 1.0)
     per_cycle = not bool(df["_cycle"].duplicated().mean() > 0.3)
     if "time" in cols:
@@ -389,6 +426,21 @@ def load_series(
                              report)
     label = f"{capacity_basis} capacity / mAh"
     return SeriesData(source, "cycling", cyc, label, used_cols, tuple(report), dataset_id)
+
+
+def _sort_out_of_order(df: pd.DataFrame, key: str, what: str, report: list[str]) -> pd.DataFrame:
+    """Rows whose ``key`` values are all distinct but not in order are sorted, with a note.
+
+    Distinct values out of order are rows written (or pasted) out of order, not a restarted
+    counter: a restart repeats values (1, 2, ..., 50, 1, 2, ...), which the reset rule handles.
+    """
+    v = df[key]
+    if len(v) < 2 or v.duplicated().any() or v.is_monotonic_increasing:
+        return df
+    falls = int((v.diff() < 0).sum())
+    report.append(f"rows out of order ({falls} places where the {what} falls back, every {what} value "
+                  f"distinct, so no restart): sorted by {what}")
+    return df.sort_values(key, kind="stable")
 
 
 def _decay_series(df: pd.DataFrame, cols: dict[str, DetectedColumn], source: str,

@@ -55,6 +55,7 @@ from redoxfront.fade.files import (
     ROLES,
     TIME_UNITS_H,
     SeriesData,
+    data_sheets,
     load_series,
 )
 from redoxfront.fade.rate_laws import (
@@ -134,8 +135,16 @@ def _log10(x: float) -> float:
 
 def fit_series(series: SeriesData, settings: FadeSettings, dataset_id: str) -> DatasetResult:
     """Fit one loaded series and compute its derived figures (one row of ``rates.csv``)."""
+    signal = pd.to_numeric(series.table[SIGNAL], errors="coerce")
+    if len(signal) and ((signal == 0) | signal.isna()).all():
+        raise DataError(f"{series.source}: the signal is zero (or missing) at all {len(signal)} points: "
+                        "nothing decays; check the column used (see the hygiene report) and its unit")
     tab = series.table[series.table[USED]]
     n = len(tab)
+    if n >= 2 and float(np.ptp(tab[TIME_H].to_numpy(float))) == 0.0:
+        raise DataError(f"{series.source}: all {n} usable points are at one time "
+                        f"({float(tab[TIME_H].iloc[0]):g} h), so no rate can be fitted; check the time "
+                        "column and [fade] time_unit")
     if n < settings.min_points:
         raise DataError(f"{series.source}: {n} usable points, at least {settings.min_points} "
                         f"needed (of {len(series.table)} read; see the hygiene report)")
@@ -195,15 +204,17 @@ def fit_series(series: SeriesData, settings: FadeSettings, dataset_id: str) -> D
 
 
 def fit_fade_file(path: str | Path, settings: FadeSettings | None = None,
-                  dataset_id: str | None = None) -> DatasetResult:
-    """Load one cycler or decay file and fit it; id from ``dataset_id``, an id column or the file stem."""
+                  dataset_id: str | None = None, sheet: str | None = None) -> DatasetResult:
+    """Load one cycler or decay file (or one ``sheet`` of a workbook) and fit it; id from
+    ``dataset_id``, an id column, or the file stem (with the sheet name for a workbook sheet)."""
     s = settings or FadeSettings()
     series = load_series(
         path, column_map=s.column_map, time_unit=s.time_unit, capacity_unit=s.capacity_unit,
         capacity_basis=s.capacity_basis, hours_per_cycle=s.hours_per_cycle,
         skip_first_cycles=s.skip_first_cycles, drop_spikes=s.drop_spikes,
-        spike_threshold=s.spike_threshold)
-    return fit_series(series, s, dataset_id or series.dataset_id or Path(path).stem)
+        spike_threshold=s.spike_threshold, sheet=sheet)
+    stem = Path(path).stem if sheet is None else f"{Path(path).stem}:{sheet}"
+    return fit_series(series, s, dataset_id or series.dataset_id or stem)
 
 
 DATA_SUFFIXES: tuple[str, ...] = (".csv", ".tsv", ".tab", ".txt", ".xlsx", ".xlsm")
@@ -247,12 +258,24 @@ def fit_fade_folder(paths: str | Path | Iterable[str | Path], settings: FadeSett
               f"{s.mean_state_of_charge:g}, models = {', '.join(s.models)}, rate_order = "
               f"{s.rate_order}, robust_loss = {s.robust_loss}, bootstrap = {s.bootstrap}.", ""]
     seen: set[str] = set()
-    for f in tqdm(files, desc="fade", unit="file", disable=not progress or len(files) < 2):
+    jobs: list[tuple[Path, str | None]] = []
+    for f in files:  # every data sheet of a workbook is a dataset of its own
         try:
-            res = fit_fade_file(f, s)
+            sheets, others = data_sheets(f, s.column_map)
+        except RedoxfrontError:
+            sheets, others = [], []  # the error is reported when the file is read below
+        if others:
+            report += [f"- {f.name}: sheet(s) {', '.join(repr(o) for o in others)} hold no capacity or "
+                       "decay column and were not fitted", ""]
+        jobs += [(f, sh) for sh in sheets] if len(sheets) > 1 else [(f, None)]
+    for f, sheet in tqdm(jobs, desc="fade", unit="file", disable=not progress or len(jobs) < 2):
+        name = f.name if sheet is None else f"{f.name} (sheet '{sheet}')"
+        try:
+            res = fit_fade_file(f, s, sheet=sheet)
         except RedoxfrontError as exc:
-            rows.append({columns.ID: f.stem, STATUS: f"error: {exc}", SOURCE_FILE: str(f)})
-            report += [f"## {f.name}", "", f"- not fitted: {exc}", ""]
+            rows.append({columns.ID: f.stem if sheet is None else f"{f.stem}:{sheet}",
+                         STATUS: f"error: {exc}", SOURCE_FILE: str(f)})
+            report += [f"## {name}", "", f"- not fitted: {exc}", ""]
             continue
         did = res.dataset_id
         if did in seen:
@@ -265,7 +288,7 @@ def fit_fade_folder(paths: str | Path | Iterable[str | Path], settings: FadeSett
         ct = res.series.table.copy()
         ct.insert(0, columns.ID, did)
         cycle_tabs.append(ct)
-        report += [f"## {f.name} (id {did}, {res.series.kind})", ""]
+        report += [f"## {name} (id {did}, {res.series.kind})", ""]
         report += [f"- {line}" for line in res.series.report]
         report += [f"- model {m} skipped: {why}" for m, why in res.choice.skipped.items()]
         report += [f"- chosen model: {res.choice.chosen} (lowest AICc); k_fade = "

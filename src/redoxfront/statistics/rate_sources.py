@@ -59,6 +59,10 @@ def _clean(df: pd.DataFrame, target: str, path: Path, source: str, notes: list[s
     df[columns.ID] = df[columns.ID].astype(str).str.strip()
     df["_row"] = np.arange(2, len(df) + 2)  # line 1 is the header
     df[target] = pd.to_numeric(df[target], errors="coerce")
+    infinite = df.loc[np.isinf(df[target]), columns.ID].tolist()
+    if infinite:  # an infinite rate (k = 0 or k = inf on the log scale) is no value, like NaN
+        notes.append(f"{path.name}: rates that are infinite, left out like missing ones: {', '.join(infinite[:20])}")
+        df = df[~np.isinf(df[target])]
     if columns.STATUS in df.columns:
         failed = df[columns.STATUS].astype(str).ne("ok")
         if failed.any():
