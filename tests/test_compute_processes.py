@@ -90,7 +90,7 @@ def test_a_second_compute_on_the_same_campaign_stops_with_a_clear_message(tmp_pa
         r = CliRunner().invoke(main, ["compute", str(folder), "--quiet"])
     assert r.exit_code == 2, r.output
     line = r.output.strip()
-    assert "\n" not in line and "another compute run (pid" in line and str(folder) in line, line
+    assert "\n" not in line and "another compute run (pid" in line and str(folder) in line, line  # pid written
     assert not (folder / "results" / "descriptors.csv").exists()  # it did none of the work
     with campaign_lock(folder):  # released when the first run ended: it can be taken again
         pass

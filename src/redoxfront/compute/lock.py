@@ -37,7 +37,8 @@ def campaign_lock(folder: str | Path) -> Iterator[None]:
         try:
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
-            holder = os.pread(fd, 200, 0).decode("utf-8", "replace").strip() or "another process"
+            # the holder writes its pid just after taking the lock: it may not be there yet
+            holder = os.pread(fd, 200, 0).decode("utf-8", "replace").strip() or "just starting"
             raise CampaignBusyError(
                 f"another compute run ({holder}) holds the campaign {folder}; wait for it to finish "
                 f"(`redoxfront status {folder}` shows its progress) or stop that process, then run again"
