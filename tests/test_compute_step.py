@@ -327,3 +327,40 @@ def test_a_potential_beyond_any_electrolyte_window_is_flagged():
     assert rows["cf4"][C.STATUS].startswith("implausible: computed potential +")
     assert "beyond +-5 V" in rows["cf4"][C.STATUS]
     assert rows["dmb"][C.STATUS] == "ok" and abs(rows["dmb"][C.potential_uncalibrated("fc")]) < 2.0
+
+
+def test_bipolar_row_has_both_couples_exactly_as_the_one_role_rows_of_its_molecule(tmp_path):
+    # a bipolar row computes the reduced, discharged and oxidised states; each couple is the
+    # same couple an anolyte or a catholyte row of the molecule computes, sharing the stored states
+    settings = ComputeSettings(conformers=FAST)
+    dmb = "COc1ccc(OC)cc1"
+    rows = [parse_candidate({"id": i, "smiles": dmb, "role": r}, k + 2, settings)
+            for k, (i, r) in enumerate((("P", "bipolar"), ("A", "anolyte"), ("B", "catholyte")))]
+    assert [s.name for s in candidate_states(rows[0])] == ["reduced", "discharged", "oxidised"]
+    out, _ = compute_candidates(rows, settings, tmp_path / "s.sqlite", workers=1, progress=False)
+    p, a, b = (o.row for o in out)
+    red, ox = C.process_potential("reduction", "uncalibrated", "fc"), C.process_potential("oxidation", "uncalibrated", "fc")
+    assert p[red] == a[C.potential_uncalibrated("fc")]
+    assert p[ox] == b[C.potential_uncalibrated("fc")]
+    # the symmetric-cell voltage is the difference; the shift and the reference cancel in it
+    assert p[C.SYMMETRIC_GAP_UNCALIBRATED] == pytest.approx(p[ox] - p[red])
+    assert np.isnan(p[C.potential_uncalibrated("fc")])  # no one-role potential for a bipolar row
+    assert (p["charge_reduced"], p["charge_discharged"], p["charge_oxidised"]) == (-1, 0, 1)
+    assert p["multiplicity_reduced"] == p["multiplicity_oxidised"] == 2
+    # chain order reduced/discharged/oxidised: lambda of the reduction couple, then the oxidation's
+    assert p[C.REORGANISATION_ENERGY] == pytest.approx(a[C.REORGANISATION_ENERGY], abs=1e-9)
+    assert p[C.REORGANISATION_ENERGY_2] == pytest.approx(b[C.REORGANISATION_ENERGY], abs=1e-9)
+    assert "steric descriptors from the discharged geometry" in p[C.DESCRIPTOR_NOTES]
+    # the three rows share three stored states (no fourth)
+    with Store(tmp_path / "s.sqlite") as s:
+        names = {r[0] for r in s._con.execute("SELECT state FROM states WHERE settings_hash=?",
+                                              (settings.result_hash(),))}
+    assert names == {"charge=-1;unpaired=1", "charge=+0;unpaired=0", "charge=+1;unpaired=1"}
+
+
+def test_a_bipolar_row_moving_two_electrons_is_refused_with_the_fix():
+    from redoxfront.errors import InputError
+
+    with pytest.raises(InputError, match="bipolar candidate moves one electron each way.*n_electrons must be 1"):
+        parse_candidate({"id": "x", "smiles": "c1ccccc1", "role": "bipolar", "n_electrons": "2"}, 2,
+                        ComputeSettings(conformers=FAST))

@@ -119,7 +119,9 @@ def solvent_keyword(name: str, where: str = "[compute] solvent") -> str:
 
 
 METHODS: tuple[str, ...] = ("GFN2-xTB", "GFN1-xTB", "IPEA1-xTB")
-ROLES: tuple[str, ...] = ("anolyte", "catholyte")
+ROLES: tuple[str, ...] = ("anolyte", "catholyte", "bipolar")
+"""catholyte: oxidised on charging; anolyte: reduced; bipolar: both, one electron each way,
+the same molecule filling both tanks of a symmetric cell."""
 
 
 def choice(*values: Any) -> dict[str, Any]:

@@ -23,6 +23,34 @@ def potential_uncalibrated(ref: str, step: int | None = None) -> str:
     return f"potential{s}_uncalibrated_v_vs_{ref}"
 
 
+PROCESSES: tuple[str, ...] = ("reduction", "oxidation")
+"""The two couples of a bipolar candidate: reduction (A + e- -> A.-) and oxidation (A -> A.+ + e-)."""
+
+
+def process_potential(process: str, basis: str, ref: str, bound: str | None = None) -> str:
+    """Potential of one couple of a bipolar candidate, V vs ``ref``.
+
+    ``process``: 'reduction' or 'oxidation'; ``basis``: 'uncalibrated', 'calibrated',
+    'measured' or 'used' (the one ranked on); ``bound``: None, 'low' or 'high' for the ends
+    of its 95 % interval, e.g. ``oxidation_potential_calibrated_pi95_low_v_vs_fc``.
+    """
+    b = "" if bound is None else f"_pi95_{bound}"
+    return f"{process}_potential_{basis}{b}_v_vs_{ref}"
+
+
+def process_column(process: str, name: str) -> str:
+    """A per-couple column of a bipolar candidate without a reference, e.g.
+    ``process_column('oxidation', 'calibration_status')`` -> ``oxidation_calibration_status``."""
+    return f"{process}_{name}"
+
+
+SYMMETRIC_GAP_UNCALIBRATED = "symmetric_cell_voltage_uncalibrated_v"
+"""Bipolar candidates: E(oxidation) - E(reduction) from the raw potentials, V. Independent of
+the reference electrode and of the empirical shift, which cancel in the difference."""
+CHARGED_FORMS: dict[str, str] = {"reduction": "reduced", "oxidation": "oxidised"}
+"""Couple -> the charged form it makes (the radical anion, the radical cation)."""
+
+
 SUBSTITUENT_PREFIX = "substituent_"
 """Library campaigns: ``substituent_<site>`` holds the substituent at each attachment point."""
 

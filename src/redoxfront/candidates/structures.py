@@ -5,7 +5,8 @@ fragments are split off (kept for the molar mass); the charge carrier is the lar
 that is not a common salt ion, and a row whose carrier is ambiguous is rejected (see
 :func:`carrier_fragment`). The charged state has n electrons fewer (catholyte,
 oxidised when charged) or more (anolyte, reduced when charged); its spin is the
-lowest one the electron count allows (singlet or doublet).
+lowest one the electron count allows (singlet or doublet). A bipolar candidate has
+both: a reduced state (one electron more) and an oxidised state (one electron fewer).
 """
 
 from __future__ import annotations
@@ -24,6 +25,8 @@ from redoxfront.engine.records import (
     STATE_CHARGED,
     STATE_DISCHARGED,
     STATE_INTERMEDIATE,
+    STATE_OXIDISED,
+    STATE_REDUCED,
     state_key,
 )
 from redoxfront.engine.xtb import SUPPORTED_ELEMENTS_MAX_Z
@@ -198,6 +201,9 @@ def parse_candidate(
         n = -1
     if n not in (1, 2):
         raise InputError(f"n_electrons '{n_text}' not allowed; allowed: 1, 2", row=label, field="n_electrons", source=source)
+    if role == "bipolar" and n != 1:
+        raise InputError("a bipolar candidate moves one electron each way (reduced and oxidised); "
+                         "n_electrons must be 1", row=label, field="n_electrons", source=source)
     extra = {k: v for k, v in raw.items() if k not in KNOWN_COLUMNS and k is not None}
     return Candidate(
         id=cid,
@@ -278,12 +284,17 @@ def read_candidates(
 
 
 def redox_states(mol_h: Chem.Mol, role: str, n_electrons: int) -> list[RedoxState]:
-    """Discharged, (intermediate,) charged states: charge and unpaired electrons.
+    """The redox states of a candidate in chain order (charge and unpaired electrons).
 
-    Catholyte: charged = discharged - n e- (oxidised). Anolyte: charged = discharged + n e-.
+    Catholyte: discharged, (intermediate,) charged = discharged - n e- (oxidised).
+    Anolyte: charged = discharged + n e-. Bipolar (n = 1): reduced (discharged + e-),
+    discharged, oxidised (discharged - e-).
     """
     q0 = Chem.GetFormalCharge(mol_h)
     electrons0 = sum(a.GetAtomicNum() for a in mol_h.GetAtoms()) - q0
+    if role == "bipolar":
+        return [RedoxState(name=name, charge=q0 + dq, uhf=(electrons0 - dq) % 2)
+                for name, dq in ((STATE_REDUCED, -1), (STATE_DISCHARGED, 0), (STATE_OXIDISED, 1))]
     step = 1 if role == "catholyte" else -1  # charge change per electron moved
     names = [STATE_DISCHARGED] + ([STATE_INTERMEDIATE] if n_electrons == 2 else []) + [STATE_CHARGED]
     states = []

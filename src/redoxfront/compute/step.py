@@ -38,6 +38,8 @@ from redoxfront.engine.potentials import potential_v, reduction_free_energy_ev
 from redoxfront.engine.records import (
     POSITION_DECIMALS,
     STATE_DISCHARGED,
+    STATE_OXIDISED,
+    STATE_REDUCED,
     CandidateStates,
     ConformerResult,
     StateResult,
@@ -395,6 +397,8 @@ def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[
         row[C.STATUS] = f"failed: {outcome.failure}"
         return row
     states = list(outcome.states.states.values())
+    if cand.role == "bipolar":
+        return _bipolar_row(row, outcome, settings)
     first, last = states[0], states[-1]
     steps = []
     for prev, nxt in zip(states[:-1], states[1:]):
@@ -425,6 +429,11 @@ def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[
         row[f"homo_{name}_ev"] = c.homo_eh * HARTREE_EV
         row[f"lumo_{name}_ev"] = c.lumo_eh * HARTREE_EV
         row[f"gap_{name}_ev"] = (c.lumo_eh - c.homo_eh) * HARTREE_EV
+    return _cost_columns(row, outcome, first)
+
+
+def _cost_columns(row: dict[str, Any], outcome: CandidateOutcome, first: StateResult) -> dict[str, Any]:
+    states = list(outcome.states.states.values())  # type: ignore[union-attr]
     row["conformers_embedded"] = outcome.conformers_embedded
     row["conformers_refined"] = len(first.conformers)
     row["gradient_calls"] = sum(c.gradient_calls for s in states for c in s.conformers)
@@ -433,6 +442,46 @@ def candidate_row(outcome: CandidateOutcome, settings: ComputeSettings) -> dict[
     row["engine_time_s"] = round(sum(s.engine_time_s for s in states), 3)
     row["from_store"] = outcome.new_engine_calls == 0
     return row
+
+
+def _bipolar_row(row: dict[str, Any], outcome: CandidateOutcome, settings: ComputeSettings) -> dict[str, Any]:
+    """The row of a bipolar candidate: both couples from the discharged state.
+
+    E(red) of A + e- -> A.- and E(ox) of A.+ + e- -> A, each as for an anolyte or a catholyte
+    row of the same molecule, and the symmetric-cell voltage E(ox) - E(red) (uncalibrated;
+    the empirical shift and the reference cancel in it). The one-role potential column stays empty.
+    """
+    ref = settings.reference
+    st = outcome.states.states  # type: ignore[union-attr]
+    neutral = st[STATE_DISCHARGED]
+    e0 = neutral.lowest.energy_eh
+    pot = {}
+    for process, form, role in (("reduction", STATE_REDUCED, "anolyte"), ("oxidation", STATE_OXIDISED, "catholyte")):
+        dg = reduction_free_energy_ev(e0, st[form].lowest.energy_eh, role)
+        pot[process] = potential_v(dg, shift_ev=settings.ipea_shift_ev, absolute_she=settings.absolute_she,
+                                   reference=ref, user_reference_v_vs_fc=settings.user_reference_v_vs_fc)
+        row[C.process_potential(process, "uncalibrated", ref)] = pot[process]
+    row[C.STATUS] = "ok"
+    worst = max((convert_potential(e, ref, "fc", settings.user_reference_v_vs_fc) for e in pot.values()), key=abs)
+    if abs(worst) > PLAUSIBLE_POTENTIAL_LIMIT_V_VS_FC:  # the same rule as a one-role row
+        row[C.STATUS] = (f"implausible: computed potential {worst:+.2f} V vs Fc+/Fc is beyond "
+                         f"+-{PLAUSIBLE_POTENTIAL_LIMIT_V_VS_FC:.0f} V, outside any electrolyte window; "
+                         "check the charge, counterions and role of this row")
+    row[C.potential_uncalibrated(ref)] = float("nan")
+    row[C.SYMMETRIC_GAP_UNCALIBRATED] = pot["oxidation"] - pot["reduction"]
+    for name in (STATE_DISCHARGED, STATE_REDUCED, STATE_OXIDISED):
+        row[f"charge_{name}"] = st[name].charge
+        row[f"multiplicity_{name}"] = st[name].multiplicity
+    low = neutral.lowest
+    for process, form in (("reduction", STATE_REDUCED), ("oxidation", STATE_OXIDISED)):
+        row[f"adiabatic_change_on_{process}_ev"] = (st[form].lowest.energy_eh - e0) * HARTREE_EV
+        row[f"vertical_change_on_{process}_ev"] = (low.vertical_energies_eh[form] - low.energy_eh) * HARTREE_EV
+    for name in (STATE_DISCHARGED, STATE_REDUCED, STATE_OXIDISED):
+        c = st[name].lowest
+        row[f"homo_{name}_ev"] = c.homo_eh * HARTREE_EV
+        row[f"lumo_{name}_ev"] = c.lumo_eh * HARTREE_EV
+        row[f"gap_{name}_ev"] = (c.lumo_eh - c.homo_eh) * HARTREE_EV
+    return _cost_columns(row, outcome, neutral)
 
 
 @dataclass(frozen=True)

@@ -51,6 +51,8 @@ from redoxfront.engine.records import (
     STATE_CHARGED,
     STATE_DISCHARGED,
     STATE_INTERMEDIATE,
+    STATE_OXIDISED,
+    STATE_REDUCED,
     CandidateStates,
     StateResult,
 )
@@ -67,7 +69,9 @@ __all__ = [
     "sites_from_mapping",
 ]
 
-STATES: tuple[str, ...] = (STATE_DISCHARGED, STATE_INTERMEDIATE, STATE_CHARGED)
+STATES: tuple[str, ...] = (STATE_REDUCED, STATE_DISCHARGED, STATE_INTERMEDIATE, STATE_CHARGED, STATE_OXIDISED)
+"""Every state name in chain order (a bipolar candidate: reduced, discharged, oxidised; its
+reorganisation energies are then the reduction couple's and, as the second, the oxidation couple's)."""
 
 
 @dataclass(frozen=True)
@@ -152,7 +156,8 @@ def descriptor_columns(
 
 
 def _radical_state(cs: CandidateStates) -> StateResult | None:
-    for name in (STATE_CHARGED, STATE_INTERMEDIATE, STATE_DISCHARGED):
+    # bipolar: the radical cation (the positive tank's form) gives the spin descriptors
+    for name in (STATE_CHARGED, STATE_INTERMEDIATE, STATE_OXIDISED, STATE_REDUCED, STATE_DISCHARGED):
         st = cs.states.get(name)
         if st is not None and st.uhf > 0 and st.conformers:
             return st
@@ -253,11 +258,17 @@ def descriptors_for_candidate(
 def _steric(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSettings,
             sites: SitesSettings, matches: dict[str, SiteMatch],
             ens: dict[str, EnsembleWeights]) -> None:
-    geo = cs.states.get(ds.geometry_state)
+    geo_state = ds.geometry_state
+    if geo_state not in cs.states and STATE_REDUCED in cs.states and STATE_OXIDISED in cs.states:
+        # a bipolar candidate has two charged forms: one set of steric descriptors, from the
+        # discharged geometry both forms are made from
+        geo_state = STATE_DISCHARGED
+        row.note(f"bipolar: steric descriptors from the {geo_state} geometry (no single {ds.geometry_state} state)")
+    geo = cs.states.get(geo_state)
     if geo is None or not geo.conformers:
-        row.note(f"no {ds.geometry_state} conformers; steric descriptors empty")
+        row.note(f"no {geo_state} conformers; steric descriptors empty")
         return
-    w = ens[ds.geometry_state]
+    w = ens[geo_state]
     try:
         r_sterimol = vdw_radii(mol, ds.sterimol_radii)
         r_clear = vdw_radii(mol, ds.clearance_radii)

@@ -15,6 +15,10 @@ import numpy as np
 STATE_DISCHARGED = "discharged"
 STATE_INTERMEDIATE = "intermediate"
 STATE_CHARGED = "charged"
+STATE_REDUCED = "reduced"
+"""Bipolar candidates: the discharged molecule plus one electron (the negative tank's charged form)."""
+STATE_OXIDISED = "oxidised"
+"""Bipolar candidates: the discharged molecule minus one electron (the positive tank's charged form)."""
 POSITION_DECIMALS = 6
 """Stored geometries are rounded to 1e-6 Angstrom (far below any geometric effect)."""
 
