@@ -187,3 +187,56 @@ def test_measured_solvent_notes_fc_in_water_user_reference_and_uncertainty(tmp_p
                                                             "measured_v": [0.4, 0.5, 0.6]})]), "fc")
     row = out.set_index(columns.ID).loc["a"]
     assert row[columns.POTENTIAL_MEASURED_UNCERTAINTY] == pytest.approx(0.01)
+
+
+def _pi_half_width(x: np.ndarray, y: np.ndarray, x0: float) -> float:
+    """95 % prediction-interval half-width of simple linear regression at x0 (any regression
+    text: t(0.975, n-2) s sqrt(1 + 1/n + (x0 - mean x)^2 / Sxx))."""
+    r = stats.linregress(x, y)
+    n = len(x)
+    s = np.sqrt(np.sum((y - r.intercept - r.slope * x) ** 2) / (n - 2))
+    return stats.t.ppf(0.975, n - 2) * s * np.sqrt(1 + 1 / n + (x0 - x.mean()) ** 2 / np.sum((x - x.mean()) ** 2))
+
+
+def test_bipolar_couples_are_calibrated_on_measured_reductions_and_oxidations_apart(tmp_path):
+    rng = np.random.default_rng(7)
+    xr, xo = np.array([-2.3, -2.0, -1.7, -1.5]), np.array([0.3, 0.6, 0.8, 1.1])
+    yr = 0.25 + 0.9 * xr + rng.normal(scale=0.03, size=4)
+    yo = -0.15 + 1.1 * xo + rng.normal(scale=0.03, size=4)
+    red = columns.process_potential("reduction", "uncalibrated", "fc")
+    ox = columns.process_potential("oxidation", "uncalibrated", "fc")
+    t = pd.DataFrame({
+        "id": [f"an{i}" for i in range(4)] + [f"cat{i}" for i in range(4)] + ["bp1", "bp2"],
+        "status": "ok", "role": ["anolyte"] * 4 + ["catholyte"] * 4 + ["bipolar"] * 2,
+        RAW: list(xr) + list(xo) + [np.nan, np.nan],
+        red: [np.nan] * 8 + [-1.9, -2.5], ox: [np.nan] * 8 + [0.7, 0.9]})
+    path = tmp_path / "measured.csv"
+    lines = ["id,potential_v,reference,solvent,process"]
+    lines += [f"an{i},{v},Fc+/Fc,acetonitrile," for i, v in enumerate(yr)]
+    lines += [f"cat{i},{v},Fc+/Fc,acetonitrile," for i, v in enumerate(yo)]
+    lines += ["bp2,0.87,Fc+/Fc,acetonitrile,oxidation", "bp1,-1.5,Fc+/Fc,acetonitrile,"]
+    path.write_text("\n".join(lines) + "\n")
+    measured, notes = read_measured_potentials(path, "fc")
+    out, report = calibrate_table(t, measured, "fc")
+    assert [line.group for line in report.lines] == ["all", "bipolar reduction", "bipolar oxidation"]
+    bp = out.set_index("id").loc[["bp1", "bp2"]]
+    # scipy.stats.linregress (reference library): the reduction line from the anolytes' measured
+    # reductions alone; the oxidation line from the catholytes' and bp2's measured oxidation
+    rr = stats.linregress(xr, yr)
+    xo2, yo2 = np.append(xo, 0.9), np.append(yo, 0.87)
+    ro = stats.linregress(xo2, yo2)
+    cal_red = columns.process_potential("reduction", "calibrated", "fc")
+    cal_ox = columns.process_potential("oxidation", "calibrated", "fc")
+    assert bp[cal_red].to_numpy() == pytest.approx(rr.intercept + rr.slope * np.array([-1.9, -2.5]), rel=1e-9)
+    assert bp[cal_ox].to_numpy() == pytest.approx(ro.intercept + ro.slope * np.array([0.7, 0.9]), rel=1e-9)
+    hi = columns.process_potential("oxidation", "calibrated", "fc", "high")
+    assert bp.loc["bp1", hi] - bp.loc["bp1", cal_ox] == pytest.approx(_pi_half_width(xo2, yo2, 0.7), rel=1e-6)
+    assert bp.loc["bp2", columns.process_potential("oxidation", "measured", "fc")] == pytest.approx(0.87)
+    assert bp["reduction_calibration_status"].tolist() == [STATUS_CALIBRATED, STATUS_OUTSIDE]
+    # a bipolar row's measured value without its couple named is not guessed at
+    assert any("bp1 without a process" in n for n in report.notes)
+    assert np.isnan(bp.loc["bp1", columns.process_potential("reduction", "measured", "fc")])
+    # too few measured oxidations: the couple stays uncalibrated and says so
+    few, rep2 = calibrate_table(t.iloc[[0, 1, 2, 3, 4, 8, 9]].reset_index(drop=True), measured, "fc")
+    assert few.set_index("id").loc["bp1", "oxidation_calibration_status"] == STATUS_UNCALIBRATED
+    assert any("bipolar oxidation potentials stay uncalibrated: 2 measured oxidation(s)" in n for n in rep2.notes)

@@ -123,8 +123,9 @@ def read_measured_potentials(path: Path, reference: str, compute_solvent: str | 
     """Read measured potentials; convert to ``reference``; average duplicate ids.
 
     Returns columns ``id``, ``measured_v`` (V vs reference), ``uncertainty_v`` (half-width
-    of the measurement's 95 % interval, V, where the optional column gives it) and ``class``
-    if given, plus notes on skipped rows. Rows with an unknown reference or non-numeric
+    of the measurement's 95 % interval, V, where the optional column gives it), ``class``
+    and ``process`` ('reduction' or 'oxidation': which couple of a bipolar candidate was
+    measured) if given, plus notes on skipped rows. Rows with an unknown reference or non-numeric
     value are skipped with a note (a bad row never stops the batch). Rows measured in
     another solvent than ``compute_solvent`` (engine keyword) get a note; an Fc+/Fc
     reference in water gets a warning.
@@ -168,6 +169,13 @@ def read_measured_potentials(path: Path, reference: str, compute_solvent: str | 
             row["uncertainty_v"] = abs(u) if math.isfinite(u) else float("nan")
         if "class" in df.columns:
             row["class"] = str(r["class"])
+        if "process" in df.columns:
+            proc = "" if pd.isna(r["process"]) else str(r["process"]).strip().lower()
+            if proc not in ("", *columns.PROCESSES):
+                notes.append(f"{path.name} row {i + 2} ({rid}): process {r['process']!r} is neither "
+                             "'reduction' nor 'oxidation'; skipped")
+                continue
+            row["process"] = proc
         rows.append(row)
     solvents = sorted(set(df["solvent"].astype(str).str.strip().str.lower()))
     notes += solvent_notes(df, compute_solvent, path.name)
@@ -176,16 +184,17 @@ def read_measured_potentials(path: Path, reference: str, compute_solvent: str | 
             f"measured potentials come from several solvents ({', '.join(solvents)}); "
             "reference conversions assume one solvent, calibrate per solvent if values differ"
         )
-    extra = (["uncertainty_v"] if "uncertainty_v" in df.columns else []) + (["class"] if "class" in df.columns else [])
+    extra = [c for c in ("uncertainty_v", "class", "process") if c in df.columns]
     out = pd.DataFrame(rows, columns=["id", "measured_v"] + extra)
-    if out["id"].duplicated().any():
+    keys = ["id", "process"] if "process" in out.columns else ["id"]
+    if out.duplicated(keys).any():
         notes.append("some ids were measured more than once; their values were averaged")
         agg: dict[str, str] = {"measured_v": "mean"}
         if "uncertainty_v" in out.columns:
             agg["uncertainty_v"] = "max"
         if "class" in out.columns:
             agg["class"] = "first"
-        out = out.groupby("id", as_index=False, sort=False).agg(agg)
+        out = out.groupby(keys, as_index=False, sort=False).agg(agg)
     return out, notes
 
 
@@ -245,9 +254,20 @@ def calibrate_table(
     t[columns.CALIBRATION_STATUS] = STATUS_UNCALIBRATED
     t[columns.CALIBRATION_GROUP] = ""
     notes: list[str] = []
+    bipolar = _is_bipolar(t)
     if measured is None or measured.empty:
         notes.append("no measured potentials given: every potential is uncalibrated")
+        _calibrate_bipolar(t, None, ref, notes)
         return t, CalibrationReport(ref, (), 0, tuple(notes))
+    # a bipolar candidate's measured rows belong to its two couples, calibrated apart below
+    bipolar_ids = set(t.loc[bipolar, columns.ID])
+    measured_bipolar = measured[measured["id"].isin(bipolar_ids)]
+    measured = measured[~measured["id"].isin(bipolar_ids)]
+    if "process" in measured.columns:
+        measured = measured.drop(columns="process").drop_duplicates("id")
+    if measured.empty:  # only bipolar candidates were measured
+        lines = _calibrate_bipolar(t, measured_bipolar, ref, notes)
+        return t, CalibrationReport(ref, tuple(lines), 0, tuple(notes))
     ok = t[columns.STATUS].astype(str).eq("ok") if columns.STATUS in t.columns else pd.Series(True, index=t.index)
     raw = pd.to_numeric(t[raw_col], errors="coerce")
     usable = ok & raw.notna()
@@ -299,7 +319,88 @@ def calibrate_table(
             f"{n_out} candidate(s) have computed potentials outside the calibration range; "
             "their calibrated values are extrapolations"
         )
+    lines += _calibrate_bipolar(t, measured_bipolar, ref, notes, one_role=(t[meas_col], raw, usable))
     return t, CalibrationReport(ref, tuple(lines), int(train.sum()), tuple(notes))
+
+
+def _is_bipolar(t: pd.DataFrame) -> pd.Series:
+    if columns.ROLE not in t.columns:
+        return pd.Series(False, index=t.index)
+    return t[columns.ROLE].astype(str).str.strip().str.lower().eq("bipolar")
+
+
+BIPOLAR_MIN_POINTS = 3
+"""Fewest measured couples of one type (reductions or oxidations) a bipolar calibration line needs."""
+
+
+def _calibrate_bipolar(
+    t: pd.DataFrame,
+    measured: pd.DataFrame | None,
+    ref: str,
+    notes: list[str],
+    one_role: tuple[pd.Series, pd.Series, pd.Series] | None = None,
+) -> list[LineFit]:
+    """Calibrate both couples of the bipolar rows of ``t`` in place; return the lines fitted.
+
+    Rule: the reduction potential of a bipolar candidate is calibrated on measured
+    reductions only (anolyte rows, and bipolar rows with ``process = reduction``), its
+    oxidation potential on measured oxidations only (catholyte rows, bipolar rows with
+    ``process = oxidation``): one line per couple type, measured = a + b x computed, with
+    its 95 % prediction interval, and at least :data:`BIPOLAR_MIN_POINTS` measured couples;
+    with fewer the couple stays uncalibrated (and says so). ``one_role``: the one-role rows'
+    measured potential, raw potential and usable mask.
+    """
+    bip = _is_bipolar(t)
+    if not bip.any():
+        return []
+    role = t[columns.ROLE].astype(str).str.strip().str.lower()
+    ok = t[columns.STATUS].astype(str).eq("ok") if columns.STATUS in t.columns else pd.Series(True, index=t.index)
+    if measured is not None and not measured.empty and "process" not in measured.columns:
+        measured = measured.assign(process="")
+    if measured is not None and not measured.empty:
+        blank = sorted(set(measured.loc[measured["process"].eq(""), "id"]))
+        if blank:
+            notes.append(f"measured potential(s) of bipolar candidate(s) {', '.join(blank[:20])} without a "
+                         "process (reduction or oxidation) column value: skipped; add the process column")
+    lines = []
+    for process in columns.PROCESSES:
+        raw_name = columns.process_potential(process, "uncalibrated", ref)
+        raw = (pd.to_numeric(t[raw_name], errors="coerce") if raw_name in t.columns
+               else pd.Series(np.nan, index=t.index))
+        names = {b: columns.process_potential(process, b, ref) for b in ("calibrated", "measured")}
+        lo_col = columns.process_potential(process, "calibrated", ref, "low")
+        hi_col = columns.process_potential(process, "calibrated", ref, "high")
+        status_col = columns.process_column(process, columns.CALIBRATION_STATUS)
+        for c in (names["calibrated"], lo_col, hi_col, names["measured"]):
+            t[c] = np.nan
+        t.loc[bip, status_col] = STATUS_UNCALIBRATED
+        if measured is not None and not measured.empty:
+            m = measured[measured["process"].eq(process)].set_index("id")
+            t.loc[bip, names["measured"]] = t.loc[bip, columns.ID].map(m["measured_v"])
+            if "uncertainty_v" in m.columns:
+                t.loc[bip, columns.process_column(process, columns.POTENTIAL_MEASURED_UNCERTAINTY)] = \
+                    t.loc[bip, columns.ID].map(m["uncertainty_v"])
+        x, y, ids = [], [], []
+        if one_role is not None:
+            meas, raw1, usable = one_role
+            same = usable & meas.notna() & role.eq("anolyte" if process == "reduction" else "catholyte")
+            x += list(raw1[same]); y += list(meas[same]); ids += list(t.loc[same, columns.ID])
+        own = bip & ok & raw.notna() & t[names["measured"]].notna()
+        x += list(raw[own]); y += list(t.loc[own, names["measured"]]); ids += list(t.loc[own, columns.ID])
+        if len(x) < BIPOLAR_MIN_POINTS:
+            if measured is not None:
+                notes.append(f"bipolar {process} potentials stay uncalibrated: {len(x)} measured "
+                             f"{process}(s), a line needs {BIPOLAR_MIN_POINTS}")
+            continue
+        cal = Calibration().fit(x, y, ids=ids, group=f"bipolar {process}")
+        lines.append(cal.line_)
+        rows = bip & ok & raw.notna()
+        pr = cal.predict(raw[rows].to_numpy())
+        t.loc[rows, names["calibrated"]] = pr["value"].to_numpy()
+        t.loc[rows, lo_col] = pr["low"].to_numpy()
+        t.loc[rows, hi_col] = pr["high"].to_numpy()
+        t.loc[rows, status_col] = pr["status"].to_numpy()
+    return lines
 
 
 def calibrate_campaign(campaign: Campaign) -> pd.DataFrame:
