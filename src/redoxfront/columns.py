@@ -51,6 +51,27 @@ CHARGED_FORMS: dict[str, str] = {"reduction": "reduced", "oxidation": "oxidised"
 """Couple -> the charged form it makes (the radical anion, the radical cation)."""
 
 
+def log10_k_predicted_form(form: str, order: int) -> str:
+    """Bipolar candidates: predicted log10 of the decomposition rate of one charged form
+    ('reduced' or 'oxidised'), 1/h (order 1) or L/(mol h) (order 2)."""
+    return f"log10_k_predicted_{form}_per_h" if order == 1 else f"log10_k_predicted_{form}_l_per_mol_per_h"
+
+
+def form_column(form: str, name: str) -> str:
+    """A per-charged-form column of a bipolar candidate, e.g. ``half_life_oxidised_h``,
+    ``domain_reduced``: the form's name goes before the unit suffix."""
+    if name.endswith("_h") and name.startswith("half_life"):
+        return f"{name[:-2]}_{form}_h"
+    return f"{name}_{form}"
+
+
+CELL_CONFIGURATION = "cell_configuration"
+"""How a candidate's cell is built: 'symmetric (same molecule in both tanks)' for a bipolar
+candidate, 'paired with the best partner' or 'fixed counter potential' for the others."""
+LIFE_LIMITED_BY = "life_limited_by"
+"""Bipolar candidates: the charged form ('reduced' or 'oxidised') whose half-life limits the cell."""
+
+
 SUBSTITUENT_PREFIX = "substituent_"
 """Library campaigns: ``substituent_<site>`` holds the substituent at each attachment point."""
 

@@ -259,9 +259,9 @@ def cell_metrics(
 
     role = (out[col.ROLE] if col.ROLE in out.columns else pd.Series(default_role, index=out.index))
     role = role.fillna(default_role).astype(str).str.strip().str.lower().to_numpy()
-    bad_role = ~np.isin(role, ["anolyte", "catholyte"])
+    bad_role = ~np.isin(role, ["anolyte", "catholyte", "bipolar"])
     for r in np.flatnonzero(bad_role):
-        notes[r].append(f"role '{role[r]}' is neither 'anolyte' nor 'catholyte'")
+        notes[r].append(f"role '{role[r]}' is neither 'anolyte', 'catholyte' nor 'bipolar'")
 
     n_e = _numeric(out, col.N_ELECTRONS) if col.N_ELECTRONS in out.columns else pd.Series(float(default_n_electrons), index=out.index)
     n_e = n_e.fillna(float(default_n_electrons)).to_numpy()

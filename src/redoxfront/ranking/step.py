@@ -171,9 +171,31 @@ def rank_table(table: pd.DataFrame, settings: RankingSettings, *, progress: bool
         col.PICK_ORDER, col.ID, col.SMILES, col.ROLE, col.EXPECTED_HV_GAIN, col.P_FRONT, col.PARETO_RANK,
         col.CELL_VOLTAGE, col.CELL_VOLTAGE_LOW, col.CELL_VOLTAGE_HIGH, col.ENERGY_DENSITY,
         col.HALF_LIFE, col.HALF_LIFE_LOW, col.HALF_LIFE_HIGH, col.MOLAR_MASS, col.POTENTIAL_BASIS,
-        col.RATE_BASIS, col.POTENTIAL_FLAG, col.WINDOW_FLAG, col.DOMAIN, col.EXTRAPOLATING, col.RANKING_NOTE) if c in picks.columns]
+        col.RATE_BASIS, col.POTENTIAL_FLAG, col.WINDOW_FLAG, col.DOMAIN, col.EXTRAPOLATING,
+        col.CELL_CONFIGURATION, col.LIFE_LIMITED_BY, col.RANKING_NOTE) if c in picks.columns]
     keep += [c for c in picks.columns if c.startswith(col.SUBSTITUENT_PREFIX)]  # a library's building blocks
     return RankingResult(out, picks[keep], float(hv_fraction), knee_id, names)
+
+
+def _symmetric_summary(table: pd.DataFrame) -> dict:
+    """What the summary says about bipolar candidates (their cells are symmetric)."""
+    bip = table[col.ROLE].astype(str).eq("bipolar") if col.ROLE in table.columns else pd.Series(False, index=table.index)
+    limited = table.loc[bip, col.LIFE_LIMITED_BY] if col.LIFE_LIMITED_BY in table.columns else pd.Series(dtype=str)
+    return {
+        "n_bipolar": int(bip.sum()),
+        "n_bipolar_ranked": int((bip & table[col.PARETO_RANK].notna()).sum()),
+        "n_bipolar_first_front": int((bip & (table[col.PARETO_RANK] == 1)).sum()),
+        "life_limited_by_counts": {str(k): int(v) for k, v in limited.value_counts().items() if k},
+        "rules": {
+            "cell_voltage_v": "E(oxidation) - E(reduction) of the same molecule; each potential measured, "
+                              "else calibrated on measured potentials of its own couple type, else uncalibrated "
+                              "with its couple type's band; interval: both intervals combined as independent errors",
+            "energy_density_wh_per_l": "u V Q / 2 on the two-tank basis (u V Q on one tank), Q = F c / 3600 Ah/L: "
+                                       "one electron per molecule in each tank, the same concentration on both sides",
+            "half_life_h": "the shorter of the half-lives of the radical anion (reduced) and the radical cation "
+                           "(oxidised): one rate model for both forms, evaluated at each form's own potential",
+        },
+    } if bip.any() else {"n_bipolar": 0}
 
 
 def ranking_settings(campaign: "Campaign") -> RankingSettings:
@@ -196,6 +218,7 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
     from redoxfront.campaign import section_from_mapping
     from redoxfront.errors import InputError
     from redoxfront.ranking.cell_metrics import CellSettings, cell_metrics, truthy
+    from redoxfront.ranking.symmetric_cell import symmetric_cell_metrics
 
     cell_settings = section_from_mapping(CellSettings, campaign.section("cell"), "cell")
     settings = ranking_settings(campaign)
@@ -235,7 +258,7 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
         roles = table[col.ROLE].astype(str).str.strip().str.lower() if col.ROLE in table.columns \
             else pd.Series(campaign.compute.role, index=table.index)
         present = set(roles) & {"anolyte", "catholyte"}
-        if len(present) == 1:
+        if len(present) == 1 and "bipolar" not in set(roles):  # bipolar rows make their own cells
             only = present.pop()
             other = "catholyte" if only == "anolyte" else "anolyte"
             raise SettingsError(
@@ -251,6 +274,7 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
         solvent=campaign.compute.solvent, user_reference_v_vs_fc=campaign.compute.user_reference_v_vs_fc,
     )
     window = metrics.attrs.get("window")
+    metrics = symmetric_cell_metrics(metrics, cell_settings, campaign.compute.reference)
     result = rank_table(metrics, settings, progress=progress)
     out_dir = campaign.results_dir
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -277,6 +301,7 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
         "cell": dataclasses.asdict(cell_settings),
         "ranking": {**dataclasses.asdict(settings), "objectives": list(settings.objectives)},
         "reference": campaign.compute.reference,
+        "symmetric_cells": _symmetric_summary(result.table),
     }
     write_json(out_dir / "ranking_summary.json", summary)
     from redoxfront.ranking.figures import plot_front, plot_pairwise

@@ -257,7 +257,7 @@ def calibrate_table(
     bipolar = _is_bipolar(t)
     if measured is None or measured.empty:
         notes.append("no measured potentials given: every potential is uncalibrated")
-        _calibrate_bipolar(t, None, ref, notes)
+        _calibrate_bipolar(t, None, ref, notes, min_points=settings.min_points_per_class)
         return t, CalibrationReport(ref, (), 0, tuple(notes))
     # a bipolar candidate's measured rows belong to its two couples, calibrated apart below
     bipolar_ids = set(t.loc[bipolar, columns.ID])
@@ -266,7 +266,7 @@ def calibrate_table(
     if "process" in measured.columns:
         measured = measured.drop(columns="process").drop_duplicates("id")
     if measured.empty:  # only bipolar candidates were measured
-        lines = _calibrate_bipolar(t, measured_bipolar, ref, notes)
+        lines = _calibrate_bipolar(t, measured_bipolar, ref, notes, min_points=settings.min_points_per_class)
         return t, CalibrationReport(ref, tuple(lines), 0, tuple(notes))
     ok = t[columns.STATUS].astype(str).eq("ok") if columns.STATUS in t.columns else pd.Series(True, index=t.index)
     raw = pd.to_numeric(t[raw_col], errors="coerce")
@@ -319,7 +319,8 @@ def calibrate_table(
             f"{n_out} candidate(s) have computed potentials outside the calibration range; "
             "their calibrated values are extrapolations"
         )
-    lines += _calibrate_bipolar(t, measured_bipolar, ref, notes, one_role=(t[meas_col], raw, usable))
+    lines += _calibrate_bipolar(t, measured_bipolar, ref, notes, one_role=(t[meas_col], raw, usable),
+                                min_points=settings.min_points_per_class)
     return t, CalibrationReport(ref, tuple(lines), int(train.sum()), tuple(notes))
 
 
@@ -329,16 +330,13 @@ def _is_bipolar(t: pd.DataFrame) -> pd.Series:
     return t[columns.ROLE].astype(str).str.strip().str.lower().eq("bipolar")
 
 
-BIPOLAR_MIN_POINTS = 3
-"""Fewest measured couples of one type (reductions or oxidations) a bipolar calibration line needs."""
-
-
 def _calibrate_bipolar(
     t: pd.DataFrame,
     measured: pd.DataFrame | None,
     ref: str,
     notes: list[str],
     one_role: tuple[pd.Series, pd.Series, pd.Series] | None = None,
+    min_points: int = 4,
 ) -> list[LineFit]:
     """Calibrate both couples of the bipolar rows of ``t`` in place; return the lines fitted.
 
@@ -346,8 +344,9 @@ def _calibrate_bipolar(
     reductions only (anolyte rows, and bipolar rows with ``process = reduction``), its
     oxidation potential on measured oxidations only (catholyte rows, bipolar rows with
     ``process = oxidation``): one line per couple type, measured = a + b x computed, with
-    its 95 % prediction interval, and at least :data:`BIPOLAR_MIN_POINTS` measured couples;
-    with fewer the couple stays uncalibrated (and says so). ``one_role``: the one-role rows'
+    its 95 % prediction interval, and at least ``min_points`` measured couples (the
+    ``[calibration] min_points_per_class`` setting); with fewer the couple stays uncalibrated
+    (and says so). ``one_role``: the one-role rows'
     measured potential, raw potential and usable mask.
     """
     bip = _is_bipolar(t)
@@ -387,10 +386,10 @@ def _calibrate_bipolar(
             x += list(raw1[same]); y += list(meas[same]); ids += list(t.loc[same, columns.ID])
         own = bip & ok & raw.notna() & t[names["measured"]].notna()
         x += list(raw[own]); y += list(t.loc[own, names["measured"]]); ids += list(t.loc[own, columns.ID])
-        if len(x) < BIPOLAR_MIN_POINTS:
+        if len(x) < min_points:
             if measured is not None:
                 notes.append(f"bipolar {process} potentials stay uncalibrated: {len(x)} measured "
-                             f"{process}(s), a line needs {BIPOLAR_MIN_POINTS}")
+                             f"{process}(s), a line needs {min_points} ([calibration] min_points_per_class)")
             continue
         cal = Calibration().fit(x, y, ids=ids, group=f"bipolar {process}")
         lines.append(cal.line_)

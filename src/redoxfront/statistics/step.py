@@ -198,6 +198,13 @@ def fit_campaign(campaign: Any) -> FitReport:
     if dropped:
         notes.append(f"rated id(s) missing from the descriptor table or failed there, left out: {', '.join(dropped[:20])}")
     rates = rates[rates[columns.ID].isin(ok_ids)]
+    if columns.ROLE in table.columns:  # a bipolar rate names no charged form: not guessed at
+        bip_ids = set(table.loc[table[columns.ROLE].astype(str).str.strip().str.lower().eq("bipolar"), columns.ID])
+        left = sorted(set(rates[columns.ID]) & bip_ids)
+        if left:
+            notes.append(f"rate(s) of bipolar candidate(s) {', '.join(left[:20])} left out of the model: a "
+                         "bipolar candidate has two charged forms and the rate does not say which decayed")
+            rates = rates[~rates[columns.ID].isin(bip_ids)]
     rate_cols = [c for c in rates.columns if c != columns.ID]
     data = table.drop(columns=[c for c in rate_cols if c in table.columns]).merge(
         rates, on=columns.ID, how="inner"
@@ -291,6 +298,9 @@ def fit_campaign(campaign: Any) -> FitReport:
     pred[columns.STANDARDISED_RESIDUAL] = pred[columns.ID].map(
         pd.Series(model.standardised_resid_, index=model.ids_)
     )
+    pred, form_notes = _predict_charged_forms(model, table, terms, pot_col, campaign.compute.reference,
+                                              st.rate_order, pred)
+    notes += form_notes
     # every candidate's own columns (identity, potentials, descriptors, user columns) come
     # along, so later steps read one table
     carried = table.drop(columns=[c for c in pred.columns if c != columns.ID and c in table.columns])
@@ -349,6 +359,50 @@ def fit_campaign(campaign: Any) -> FitReport:
         model_path=model_path, predictions_path=pred_path, figures=tuple(figs), notes=tuple(notes),
         rate_sources=trained_counts,
     )
+
+
+def _predict_charged_forms(model: OLSModel, table: pd.DataFrame, terms: tuple[str, ...], pot_col: str,
+                           ref: str, order: int, pred: pd.DataFrame) -> tuple[pd.DataFrame, list[str]]:
+    """Predicted rates of both charged forms of every bipolar candidate.
+
+    Rule (one rate model for both forms, stated): the campaign's model, fitted on one-role
+    candidates, is evaluated for the radical anion with the candidate's reduction potential
+    and for the radical cation with its oxidation potential in place of the potential term
+    (calibrated when the model uses calibrated potentials, else uncalibrated), every other
+    term unchanged. Radical anions and cations decompose by different routes, so a form
+    unlike the training set is extrapolation: its leverage says so (``domain_<form>``).
+    """
+    if columns.ROLE not in table.columns:
+        return pred, []
+    bip = table[columns.ROLE].astype(str).str.strip().str.lower().eq("bipolar").to_numpy()
+    if not bip.any():
+        return pred, []
+    notes = []
+    basis = "calibrated" if pot_col == columns.potential_calibrated(ref) else "uncalibrated"
+    X = table.loc[bip].set_index(columns.ID)[[t for t in terms if t != pot_col]].apply(pd.to_numeric, errors="coerce")
+    ids = pred[columns.ID].to_numpy()
+    for process, form in columns.CHARGED_FORMS.items():
+        name = columns.process_potential(process, basis, ref)
+        if pot_col in terms:
+            values = pd.to_numeric(table.loc[bip, name], errors="coerce") if name in table.columns \
+                else pd.Series(np.nan, index=table.index[bip])
+            X[pot_col] = values.to_numpy()
+            if values.isna().any():
+                notes.append(f"bipolar {form} forms without a {basis} {process} potential are not predicted")
+        pi = model.predict_interval(X[list(terms)])
+        col_k = columns.log10_k_predicted_form(form, order)
+        where = {i: k for k, i in enumerate(X.index)}
+        pos = [where.get(i) for i in ids]
+
+        def put(column: str, values: np.ndarray, fill: Any = np.nan) -> None:
+            pred[column] = [values[p] if p is not None else fill for p in pos]
+
+        put(col_k, pi["prediction"].to_numpy())
+        put(col_k + columns.PI_LOW_SUFFIX, pi["pi_low"].to_numpy())
+        put(col_k + columns.PI_HIGH_SUFFIX, pi["pi_high"].to_numpy())
+        put(columns.form_column(form, columns.LEVERAGE), pi["leverage"].to_numpy())
+        put(columns.form_column(form, columns.DOMAIN), pi["domain"].to_numpy(), "")
+    return pred, notes
 
 
 def _pool(table: pd.DataFrame, st: ModelSettings, pot_col: str) -> list[str]:
