@@ -81,3 +81,51 @@ def test_run_every_step_and_report(tmp_path):
     assert f"tblite {version('tblite')}" in html
     assert f"settings hash {camp.compute.result_hash()}" in html
     assert "<code>geometries.sdf</code>" in html and "<code>picks.csv</code>" in html  # files listed
+
+
+@pytest.mark.slow
+def test_invented_bipolar_example_runs_end_to_end_with_symmetric_cells(tmp_path):
+    import shutil
+
+    from redoxfront.units import AH_PER_MOL_ELECTRONS
+
+    folder = tmp_path / "bipolar"
+    shutil.copytree(Path(__file__).parents[1] / "examples" / "bipolar-symmetric-cells", folder)
+    lines = []
+    run_campaign(folder, progress=False, echo=lines.append)
+    text = "\n".join(lines)
+    assert "bipolar reductions calibrated 4" in text and "bipolar oxidations measured 1" in text
+    res = folder / "results"
+    ranked = pd.read_csv(res / "ranking.csv").set_index("id")
+    bip = ranked[ranked[C.ROLE] == "bipolar"]
+    assert sorted(bip.index) == ["imine-cn", "imine-h", "imine-nme2", "imine-ome"]
+    assert bip[C.PARETO_RANK].notna().all() and ranked[C.PARETO_RANK].notna().all()  # ranked side by side
+    assert (bip[C.PARTNER_ID] == bip.index).all()  # each bipolar molecule is its own counter electrolyte
+    red, ox = C.process_potential("reduction", "used", "fc"), C.process_potential("oxidation", "used", "fc")
+    # V = E(ox) - E(red); W = V Q / 2 on the two-tank basis, Q = F c / 3600 = 26.80148 x 0.5 Ah/L
+    # (CODATA 2018 Faraday constant)
+    assert bip[C.CELL_VOLTAGE].to_numpy() == pytest.approx((bip[ox] - bip[red]).to_numpy())
+    assert bip[C.ENERGY_DENSITY].to_numpy() == pytest.approx(bip[C.CELL_VOLTAGE].to_numpy() * 26.80148 * 0.5 / 2, rel=1e-5)
+    assert AH_PER_MOL_ELECTRONS == pytest.approx(26.80148, abs=1e-5)
+    assert (bip[C.CELL_VOLTAGE_LOW] < bip[C.CELL_VOLTAGE]).all() and (bip[C.CELL_VOLTAGE] < bip[C.CELL_VOLTAGE_HIGH]).all()
+    # the measured oxidation of imine-h is used as measured; the rest are calibrated per couple type
+    assert ranked.loc["imine-h", ox] == pytest.approx(1.24)
+    assert ranked.loc["imine-h", "oxidation_potential_basis"] == "measured"
+    assert set(bip["reduction_potential_basis"]) == {"calibrated"}
+    forms = bip[[C.form_column("reduced", C.HALF_LIFE), C.form_column("oxidised", C.HALF_LIFE)]]
+    assert bip[C.HALF_LIFE].to_numpy() == pytest.approx(forms.min(axis=1).to_numpy())
+    assert set(bip[C.LIFE_LIMITED_BY]) <= {"reduced", "oxidised"}
+    # one rate model for both forms: each form's rate is the model at that form's own potential
+    model = json.loads((res / "model.json").read_text())
+    pred = pd.read_csv(res / "predictions.csv").set_index("id").loc[bip.index]
+    b0, b1, b2 = model["coefficients"]
+    assert model["terms"] == [C.potential_calibrated("fc"), "gap_discharged_ev"]
+    assert pred[C.log10_k_predicted_form("oxidised", 1)].to_numpy() == pytest.approx(
+        (b0 + b1 * pred[C.process_potential("oxidation", "calibrated", "fc")] + b2 * pred["gap_discharged_ev"]).to_numpy())
+    assert pred[C.log10_k_predicted_form("reduced", 1)].to_numpy() == pytest.approx(
+        (b0 + b1 * pred[C.process_potential("reduction", "calibrated", "fc")] + b2 * pred["gap_discharged_ev"]).to_numpy())
+    summary = json.loads((res / "ranking_summary.json").read_text())["symmetric_cells"]
+    assert summary["n_bipolar"] == 4 and summary["n_bipolar_ranked"] == 4
+    assert "shorter" in summary["rules"]["half_life_h"]
+    groups = [line["group"] for line in json.loads((res / "calibration.json").read_text())["lines"]]
+    assert groups == ["all", "bipolar reduction", "bipolar oxidation"]

@@ -43,7 +43,16 @@ def potential_counts(table: "pd.DataFrame", reference: str) -> dict[str, int]:
     measured = num(columns.potential_measured(ref)).notna()
     calibrated = num(columns.potential_calibrated(ref)).notna() & ~measured
     raw = num(columns.potential_uncalibrated(ref)).notna() & ~measured & ~calibrated
-    return {"measured": int(measured.sum()), "calibrated": int(calibrated.sum()), "uncalibrated": int(raw.sum())}
+    counts = {"measured": int(measured.sum()), "calibrated": int(calibrated.sum()), "uncalibrated": int(raw.sum())}
+    for process in columns.PROCESSES:  # bipolar candidates: each couple counted on its own
+        m = num(columns.process_potential(process, "measured", ref)).notna()
+        c = num(columns.process_potential(process, "calibrated", ref)).notna() & ~m
+        r = num(columns.process_potential(process, "uncalibrated", ref)).notna() & ~m & ~c
+        if (m | c | r).any():
+            counts.update({f"bipolar {process}s measured": int(m.sum()),
+                           f"bipolar {process}s calibrated": int(c.sum()),
+                           f"bipolar {process}s uncalibrated": int(r.sum())})
+    return counts
 
 
 def run_campaign(
