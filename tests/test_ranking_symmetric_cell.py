@@ -112,3 +112,13 @@ def test_bipolar_candidates_are_ranked_beside_ordinary_ones_on_the_same_objectiv
     # bq: the highest energy density (2.90 V symmetric cell) -> on the first front
     assert bq[col.PARETO_RANK] == 1
     assert ranked[col.RANKING_NOTE].fillna("").eq("").all()
+
+
+def test_both_couples_are_checked_against_the_electrolyte_window():
+    m = _metrics(window_low_v=-2.0, window_high_v=1.0)
+    # bp: -1.80 +/- 0.02 and +0.60 +/- 0.02 V lie inside [-2.0, 1.0] V
+    assert m.loc["bp", col.WINDOW_FLAG] == ""
+    # bq (uncalibrated): its reduction band reaches below -2.0 V and its oxidation band above 1.0 V
+    flag = m.loc["bq", col.WINDOW_FLAG]
+    assert "may be outside the window: above the oxidation limit 1.00 V" in flag
+    assert "may be outside the window: below the reduction limit -2.00 V" in flag
