@@ -99,7 +99,12 @@ REFERENCE_ALIASES: dict[str, str] = {
     "ag/ag+ (0.01 m agno3 in mecn)": "agag",
     "ag/ag+ (0.01 m agno3 in acetonitrile)": "agag",
     "user": "user",
+    "rhe": "rhe",
+    "reversible hydrogen electrode": "rhe",
 }
+
+RHE = "rhe"
+"""Key of the reversible hydrogen electrode: its potential vs SHE depends on the pH."""
 
 USER_REFERENCE = "user"
 """Key of the user-defined reference: its potential vs Fc+/Fc is stated in ``[compute]
@@ -112,6 +117,7 @@ REFERENCE_LABELS: dict[str, str] = {
     "fc": "Fc+/Fc",
     "agag": "Ag/Ag+ (0.01 M AgNO3, MeCN)",
     "user": "user-defined reference",
+    "rhe": "RHE",
 }
 """How a reference is written wherever a person reads it (never the short key)."""
 
@@ -124,10 +130,19 @@ def reference_label(name: str, user_name: str | None = None) -> str:
     return REFERENCE_LABELS[key]
 
 
-def reference_v_vs_she(name: str, user_v_vs_fc: float | None = None) -> float:
+def reference_v_vs_she(name: str, user_v_vs_fc: float | None = None, ph: float | None = None,
+                       temperature_k: float = STANDARD_TEMPERATURE_K) -> float:
     """Potential of a reference electrode vs SHE, V; the user-defined one needs its stated
-    offset vs Fc+/Fc."""
+    offset vs Fc+/Fc, the reversible hydrogen electrode (RHE) the pH of the solution it
+    sits in: E(RHE) = -(ln 10) RT/F x pH vs SHE (it moves with pH)."""
     key = reference_key(name)
+    if key == RHE:
+        if ph is None:
+            raise SettingsError(
+                "a potential vs RHE needs the pH of its solution: give a 'ph' column in the measured "
+                "potentials file (or set [aqueous] ph)"
+            )
+        return rhe_v_vs_she(float(ph), temperature_k)
     if key == USER_REFERENCE:
         if user_v_vs_fc is None:
             raise SettingsError(
@@ -149,15 +164,73 @@ def reference_key(name: str) -> str:
     return key
 
 
-def convert_potential(value_v: float, from_ref: str, to_ref: str, user_v_vs_fc: float | None = None) -> float:
+def convert_potential(value_v: float, from_ref: str, to_ref: str, user_v_vs_fc: float | None = None,
+                      ph: float | None = None, temperature_k: float = STANDARD_TEMPERATURE_K) -> float:
     """Convert a potential (V) measured against ``from_ref`` to one against ``to_ref``.
 
     E(vs B) = E(vs A) + E(A vs SHE) - E(B vs SHE). ``user_v_vs_fc``: the stated potential of
-    the user-defined reference vs Fc+/Fc, V (needed only when 'user' is involved).
+    the user-defined reference vs Fc+/Fc, V (needed only when 'user' is involved); ``ph``:
+    the pH of the solution (needed only when RHE is involved).
     """
-    a = reference_v_vs_she(from_ref, user_v_vs_fc)
-    b = reference_v_vs_she(to_ref, user_v_vs_fc)
+    a = reference_v_vs_she(from_ref, user_v_vs_fc, ph, temperature_k)
+    b = reference_v_vs_she(to_ref, user_v_vs_fc, ph, temperature_k)
     return value_v + a - b
+
+
+# --- water: Nernst slope, stability lines, a published aqueous partner ---------------------
+def nernst_slope_v_per_ph(temperature_k: float = STANDARD_TEMPERATURE_K) -> float:
+    """(ln 10) RT/F, V per pH unit: how far a couple moving one proton per electron shifts per
+    pH unit (0.05916 V at 298.15 K from the CODATA 2018 R and F)."""
+    return math.log(10.0) * GAS_CONSTANT_J_PER_MOL_K * temperature_k / FARADAY_C_PER_MOL
+
+
+def rhe_v_vs_she(ph: float, temperature_k: float = STANDARD_TEMPERATURE_K) -> float:
+    """Potential of the reversible hydrogen electrode vs SHE at ``ph``, V (-0.0592 V per pH)."""
+    return -nernst_slope_v_per_ph(temperature_k) * float(ph)
+
+
+OXYGEN_EVOLUTION_V_VS_SHE: float = 1.229
+"""O2 + 4 H+ + 4 e- -> 2 H2O, standard potential vs SHE at 298.15 K, V (Bard, Parsons &
+Jordan, Standard Potentials in Aqueous Solution, IUPAC 1985; value from memory). The
+hydrogen line (2 H+ + 2 e- -> H2) is 0 V vs SHE by definition."""
+
+
+def water_lines_v_vs_she(ph: float, temperature_k: float = STANDARD_TEMPERATURE_K) -> tuple[float, float]:
+    """(hydrogen evolution, oxygen evolution) equilibrium potentials at ``ph``, V vs SHE.
+
+    Both move by -(ln 10) RT/F per pH unit and stay 1.229 V apart: the thermodynamic
+    stability window of water (Pourbaix, Atlas of Electrochemical Equilibria, 1974).
+    """
+    shift = rhe_v_vs_she(ph, temperature_k)
+    return shift, OXYGEN_EVOLUTION_V_VS_SHE + shift
+
+
+PUBLISHED_PARTNERS: dict[str, dict[str, object]] = {
+    "ferricyanide": {
+        "label": "ferri/ferrocyanide, [Fe(CN)6]3-/4-",
+        "potential_v_vs_she": 0.361,
+        "n_electrons": 1,
+        "source": "Bard, Parsons & Jordan, Standard Potentials in Aqueous Solution (IUPAC 1985): "
+                  "+0.361 V vs SHE, no proton in the couple (value from memory; ionic strength shifts it)",
+    },
+}
+"""Fixed partner couples of aqueous cells with their published standard potentials and sources.
+Ferri/ferrocyanide is the usual alkaline catholyte partner; it moves no proton, so its potential
+does not change with pH in neutral and alkaline solution."""
+
+PARTNER_ALIASES: dict[str, str] = {
+    "ferricyanide": "ferricyanide", "ferrocyanide": "ferricyanide",
+    "ferri/ferrocyanide": "ferricyanide", "[fe(cn)6]3-/4-": "ferricyanide",
+}
+
+
+def partner_couple(name: str) -> dict[str, object]:
+    """A published fixed partner by name (``ferricyanide``), with potential vs SHE and source."""
+    key = PARTNER_ALIASES.get(" ".join(str(name).strip().lower().split()))
+    if key is None:
+        raise SettingsError(
+            f"unknown partner couple '{name}'; allowed: {', '.join(sorted(PARTNER_ALIASES))}")
+    return PUBLISHED_PARTNERS[key]
 
 
 def hartree_to_ev(energy_eh: float) -> float:
