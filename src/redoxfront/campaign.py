@@ -22,6 +22,8 @@ from typing import Any, Mapping, TypeVar
 from redoxfront.errors import SettingsError
 from redoxfront.units import (
     ABSOLUTE_SHE_V,
+    RHE,
+    STANDARD_TEMPERATURE_K,
     USER_REFERENCE,
     reference_key,
 )
@@ -277,6 +279,12 @@ class ComputeSettings:
         name = str(self.reference).strip()
         key = USER_REFERENCE if name.lower() == self.user_reference_name.strip().lower() else reference_key(name)
         object.__setattr__(self, "reference", key)
+        if key == RHE:
+            raise SettingsError(
+                "[compute] reference = 'RHE': the reversible hydrogen electrode moves with pH, so it "
+                "cannot be the campaign's fixed scale; use SHE (or Ag/AgCl, SCE) and set [aqueous] ph. "
+                "Measured potentials may still be given vs RHE with their pH per row"
+            )
         if key == USER_REFERENCE and self.user_reference_v_vs_fc is None:
             raise SettingsError(
                 f"[compute] reference = '{name}' is the user-defined reference: state its potential "
@@ -302,6 +310,44 @@ class ComputeSettings:
         }
         text = json.dumps(keep, sort_keys=True)
         return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+@dataclass(frozen=True)
+class AqueousSettings:
+    """Section ``[aqueous]``: an electrolyte in water, potentials at the cell's pH.
+
+    ph : pH of the cell's electrolyte; every potential is given at it (Nernst, with the
+        pKa breakpoints of each couple).
+    temperature_k : temperature of the Nernst slope, K.
+    sites : replaces or switches off ('off') acceptor-site patterns by name (SMARTS), see
+        :mod:`redoxfront.candidates.protonation`.
+    estimate_pka : estimate pKa values a candidate does not give (proton-exchange scheme).
+    pka_slope : empirical slope of the exchange scheme (default: the value fitted on phenols).
+    pka_uncertainty : stated half-width of estimated pKa values, pKa units.
+    water_window_allowance_v : overpotential allowance beyond the thermodynamic water lines
+        before a couple is flagged as outside the window, V (0 = strict).
+    """
+
+    ph: float = field(default=7.0, metadata=bounded(-1.0, 15.0))
+    temperature_k: float = field(default=STANDARD_TEMPERATURE_K, metadata=bounded(250.0, 400.0))
+    sites: dict[str, str] = field(default_factory=dict)
+    estimate_pka: bool = True
+    pka_slope: float | None = field(default=None, metadata=bounded(0.05, 2.0))
+    pka_uncertainty: float | None = field(default=None, metadata=bounded(0.0, 20.0))
+    water_window_allowance_v: float = field(default=0.0, metadata=bounded(0.0, 2.0))
+
+
+def aqueous_settings(campaign: "Campaign") -> AqueousSettings | None:
+    """The campaign's ``[aqueous]`` settings, or None for a campaign without that section."""
+    if "aqueous" not in campaign.sections:
+        return None
+    settings = section_from_mapping(AqueousSettings, campaign.section("aqueous"), "aqueous")
+    if campaign.compute.solvent != "water":
+        raise SettingsError(
+            f"[aqueous] is set but [compute] solvent = '{campaign.compute.solvent}'; set solvent = "
+            "'water' for an aqueous campaign, or remove [aqueous]"
+        )
+    return settings
 
 
 @dataclass(frozen=True)
@@ -386,6 +432,7 @@ def _inside(path: Path, folder: Path) -> bool:
 
 OWNED_SECTIONS: tuple[str, ...] = (
     "calibration", "model", "fade", "cell", "ranking", "sites", "descriptors", "report", "library",
+    "aqueous",
 )
 
 

@@ -323,3 +323,36 @@ FADE_Y0 = "y0"
 """Fitted signal at the first point used, in the unit of the signal (mAh for capacity)."""
 FADE_Y_INF = "y_inf"
 """Fitted plateau of ``first_order_plateau`` in the unit of the signal; empty for the others."""
+
+# --- aqueous campaigns: proton-coupled couples (redoxfront.compute.aqueous) -------------
+CAMPAIGN_PH = "campaign_ph"
+"""pH the potentials of an aqueous campaign are given at ([aqueous] ph)."""
+PKA_REDUCED = "pka_reduced"
+"""pKa values of the protons the reduced form takes up (';' between, ascending); a candidate
+column of that name gives them, else they are estimated."""
+PKA_OXIDISED = "pka_oxidised"
+"""pKa values of protons the oxidised form takes up (given only)."""
+PKA_SOURCE = "pka_source"
+"""'given', 'estimated' or 'none'."""
+PKA_UNCERTAINTY = "pka_uncertainty"
+"""Stated half-width of the pKa values, pKa units (estimated ones: wide)."""
+PKA_REFERENCE = "pka_reference_acid"
+"""Reference acid(s) of estimated pKa values and the empirical slope used."""
+PROTON_SITES = "proton_sites"
+"""Sites (element + canonical atom index + family) that take up protons on reduction."""
+PROTONATION_FORMS = "protonation_forms"
+"""The reduced forms computed (store name: SMILES, charge)."""
+PROTONS_AT_PH = "protons_moved_at_ph"
+"""m: protons moved with the n electrons at the campaign pH."""
+NERNST_SLOPE_AT_PH = "potential_slope_at_ph_v_per_ph"
+"""dE/dpH of the couple at the campaign pH, V per pH unit."""
+
+
+def potential_electron_transfer_uncalibrated(ref: str) -> str:
+    """Raw potential of the forms as computed (no proton moved), V vs ``ref``."""
+    return f"potential_electron_transfer_uncalibrated_v_vs_{ref}"
+
+
+def potential_ph0_uncalibrated(ref: str) -> str:
+    """Raw potential extrapolated to pH 0 along the couple's lines, V vs ``ref``."""
+    return f"potential_ph0_uncalibrated_v_vs_{ref}"

@@ -19,7 +19,7 @@ import pandas as pd
 from rdkit import Chem
 
 from redoxfront import columns as C
-from redoxfront.campaign import Campaign, ComputeSettings
+from redoxfront.campaign import AqueousSettings, Campaign, ComputeSettings, aqueous_settings
 from redoxfront.candidates.conformers import generate_conformers
 from redoxfront.candidates.structures import (
     Candidate,
@@ -28,6 +28,7 @@ from redoxfront.candidates.structures import (
     read_candidates,
     redox_states,
 )
+from redoxfront.compute.aqueous import add_proton_coupling
 from redoxfront.compute.executors import map_tasks
 from redoxfront.compute.geometries import write_geometries
 from redoxfront.compute.lock import campaign_lock
@@ -506,11 +507,13 @@ def compute_candidates(
     progress: bool = True,
     sections: dict[str, Any] | None = None,
     describe: bool = True,
+    aqueous: AqueousSettings | None = None,
 ) -> tuple[list[CandidateOutcome], float]:
     """Compute every candidate and its descriptor row (local pool or Dask), in input order.
 
     ``sections``: the campaign's raw ``sites`` and ``descriptors`` tables;
-    ``describe=False`` leaves the descriptors out (potentials only, for a first pass).
+    ``describe=False`` leaves the descriptors out (potentials only, for a first pass);
+    ``aqueous``: potentials at the pH of an aqueous campaign (:mod:`redoxfront.compute.aqueous`).
     """
     sections = (sections or {}) if describe else None
     t0 = time.perf_counter()
@@ -527,7 +530,7 @@ def compute_candidates(
         known = {c.id: None if local else _stored_states(store, c, settings) for c in candidates}
     # largest first: the pool's tail is then short jobs, not one long one
     items = [(c, known[c.id]) for c in sorted(candidates, key=_expected_cost, reverse=True)]
-    task_args = (settings, store_path if local else None, sections)
+    task_args = (settings, store_path if local else None, sections, aqueous)
     if not items:
         return [], time.perf_counter() - t0
     # local workers wrote their states already; only cluster results are stored here.
@@ -567,23 +570,58 @@ def candidate_task(
     store_path: str | None,
     stored: dict[str, dict] | None,
     sections: dict[str, Any] | None,
+    aqueous: AqueousSettings | None = None,
 ) -> CandidateOutcome:
     """Compute one candidate and its descriptor row (runs in a worker).
 
     ``sections``: the campaign's raw ``sites`` and ``descriptors`` tables, or None for
-    no descriptors (potentials only).
+    no descriptors (potentials only). ``aqueous``: the campaign's ``[aqueous]`` settings (the
+    row's potentials are then those at its pH, :mod:`redoxfront.compute.aqueous`).
     """
     t0 = time.perf_counter()
     out = compute_candidate(candidate, settings, store_path, stored)
     row = candidate_row(out, settings)
+    payloads = dict(out.payloads)
+    if out.states is not None and aqueous is not None:
+        row = _aqueous_row(row, out, settings, aqueous, store_path, stored, payloads)
     if out.states is not None and sections is not None:
         mol_h = Chem.AddHs(Chem.MolFromSmiles(candidate.main_smiles))
         row.update(descriptors_for_candidate(mol_h, out.states, sections.get("sites"),
                                              sections.get("descriptors")))
-    row.update(candidate.extra)  # user columns last, unchanged
+    row.update({k: v for k, v in candidate.extra.items() if k not in row or aqueous is None})  # user columns
     # a local worker stored its payloads already: do not ship them back (memory, IPC)
-    payloads = {} if store_path else out.payloads
+    payloads = {} if store_path else payloads
     return replace(out, row=row, payloads=payloads, task_seconds=time.perf_counter() - t0)
+
+
+def _aqueous_row(row: dict[str, Any], out: CandidateOutcome, settings: ComputeSettings, aqueous: AqueousSettings,
+                 store_path: str | None, stored: dict[str, dict] | None,
+                 payloads: dict[str, dict[str, Any]]) -> dict[str, Any]:
+    """Protonation forms, pKa values and potentials at the campaign pH (store-backed)."""
+    key_hash = settings.result_hash()
+    cand = out.candidate
+    store = Store(store_path) if store_path else None
+    engine = make_engine(settings.engine, settings.method, settings.solvent)
+
+    def lookup(smiles: str, name: str) -> dict | None:
+        if smiles == cand.main_smiles and stored and name in stored:
+            return stored[name]
+        return store.get(smiles, name, key_hash) if store is not None else None
+
+    def keep(smiles: str, name: str, payload: dict) -> dict:
+        if store is not None:
+            payload = store.put(smiles, name, key_hash, payload)
+        if smiles == cand.main_smiles:
+            payloads[name] = payload
+        return payload
+
+    steps = [row[c] for c in (C.potential_uncalibrated(settings.reference, 1),
+                              C.potential_uncalibrated(settings.reference, 2)) if c in row]
+    try:
+        return add_proton_coupling(row, cand, out.states, steps, settings, aqueous, engine, lookup, keep)
+    finally:
+        if store is not None:
+            store.close()
 
 
 def _expected_cost(candidate: Candidate) -> int:
@@ -597,8 +635,8 @@ def _expected_cost(candidate: Candidate) -> int:
 
 
 def _run_job(job: tuple[Candidate, dict | None], settings: ComputeSettings, store_path: str | None,
-             sections: dict[str, Any] | None) -> CandidateOutcome:
-    return candidate_task(job[0], settings, store_path, job[1], sections)
+             sections: dict[str, Any] | None, aqueous: AqueousSettings | None = None) -> CandidateOutcome:
+    return candidate_task(job[0], settings, store_path, job[1], sections, aqueous)
 
 
 def compute_campaign(
@@ -633,7 +671,7 @@ def _compute_campaign(campaign: Campaign, candidates_path: str | Path | None, ou
     sections = {"sites": campaign.section("sites"), "descriptors": campaign.section("descriptors")}
     outcomes, wall = compute_candidates(candidates, settings, campaign.store_path, workers=workers,
                                         dask_address=dask_address, progress=progress, sections=sections,
-                                        describe=describe)
+                                        describe=describe, aqueous=aqueous_settings(campaign))
     table = pd.DataFrame([o.row for o in outcomes])
     out = Path(out_path) if out_path else campaign.results_dir / "descriptors.csv"
     out.parent.mkdir(parents=True, exist_ok=True)
