@@ -324,8 +324,8 @@ class AqueousSettings:
     estimate_pka : estimate pKa values a candidate does not give (proton-exchange scheme).
     pka_slope : empirical slope of the exchange scheme (default: the value fitted on phenols).
     pka_uncertainty : stated half-width of estimated pKa values, pKa units.
-    water_window_allowance_v : overpotential allowance beyond the thermodynamic water lines
-        before a couple is flagged as outside the window, V (0 = strict).
+    The water window's overpotential allowance is ``[cell] water_overpotential_v``; the window
+    follows this pH (``[cell] ph`` may be left out).
     """
 
     ph: float = field(default=7.0, metadata=bounded(-1.0, 15.0))
@@ -334,7 +334,6 @@ class AqueousSettings:
     estimate_pka: bool = True
     pka_slope: float | None = field(default=None, metadata=bounded(0.05, 2.0))
     pka_uncertainty: float | None = field(default=None, metadata=bounded(0.0, 20.0))
-    water_window_allowance_v: float = field(default=0.0, metadata=bounded(0.0, 2.0))
 
 
 def aqueous_settings(campaign: "Campaign") -> AqueousSettings | None:

@@ -356,3 +356,7 @@ def potential_electron_transfer_uncalibrated(ref: str) -> str:
 def potential_ph0_uncalibrated(ref: str) -> str:
     """Raw potential extrapolated to pH 0 along the couple's lines, V vs ``ref``."""
     return f"potential_ph0_uncalibrated_v_vs_{ref}"
+MEASURED_PH_NOTE = "measured_ph_note"
+"""How a measured potential was moved to the campaign pH, and the pKa values it crossed."""
+ELECTRONS_AT_PH = "electrons_usable_at_ph"
+"""Electrons of the couple whose steps lie inside the water window at the campaign pH."""

@@ -33,10 +33,11 @@ import pandas as pd
 from redoxfront import columns as col
 from redoxfront.campaign import bounded, choice
 from redoxfront.errors import InputError, SettingsError
-from redoxfront.units import AH_PER_MOL_ELECTRONS
+from redoxfront.units import AH_PER_MOL_ELECTRONS, convert_potential, partner_couple
+
 
 TANK_BASES: tuple[str, ...] = ("two-tank", "one-tank")
-COUNTER_MODES: tuple[str, ...] = ("best-partner", "potential")
+COUNTER_MODES: tuple[str, ...] = ("best-partner", "potential", "published")
 TRUE_WORDS = frozenset({"true", "yes", "y", "1", "measured"})
 
 
@@ -45,7 +46,10 @@ class CellSettings:
     """Campaign section ``[cell]``: how candidates are turned into cell figures.
 
     counter : 'best-partner' pairs each candidate with the candidate of the other role
-        that gives the largest voltage; 'potential' uses ``counter_potential_v``.
+        that gives the largest voltage; 'potential' uses ``counter_potential_v``; 'published'
+        a fixed partner couple with a published potential (``counter_couple``, e.g.
+        'ferricyanide', :data:`redoxfront.units.PUBLISHED_PARTNERS`).
+    counter_couple : the published partner for 'published'.
     counter_potential_v : potential of the counter couple, V vs the campaign reference.
     counter_capacity_ah_per_l : capacity of the counter electrolyte for 'potential'
         mode, Ah/L; unset = the same as the candidate's (matched tanks).
@@ -70,6 +74,7 @@ class CellSettings:
 
     counter: str = field(default="best-partner", metadata=choice(*COUNTER_MODES))
     counter_potential_v: float | None = None
+    counter_couple: str = "ferricyanide"
     counter_capacity_ah_per_l: float | None = field(default=None, metadata=bounded(0.0, None))
     concentration_mol_per_l: float = field(default=0.5, metadata=bounded(0.0, 30.0))
     solubility_mol_per_l: float | None = field(default=None, metadata=bounded(0.0, None))
@@ -93,6 +98,8 @@ class CellSettings:
                 "[cell] counter_potential_v is set but counter = 'best-partner'; "
                 "set counter = 'potential' to use it, or remove it"
             )
+        if self.counter == "published":
+            partner_couple(self.counter_couple)  # a known name, or the error listing them
         if self.concentration_mol_per_l <= 0:
             raise SettingsError("[cell] concentration_mol_per_l must be > 0")
         if self.solubility_mol_per_l is not None and self.solubility_mol_per_l <= 0:
@@ -245,6 +252,10 @@ def cell_metrics(
 ) -> pd.DataFrame:
     """Cell voltage, capacities, energy density and half-life for every candidate.
 
+    In water the window (:mod:`redoxfront.ranking.windows`, at ``[cell] ph``) also decides
+    how many electrons count: a step of a two-electron couple beyond it transfers none
+    (:mod:`redoxfront.ranking.water`), and capacity and energy density use the rest.
+
     ``table`` has one row per candidate (columns from :mod:`redoxfront.columns`); ``ref``
     is the campaign's reference electrode key (e.g. 'fc'). Returns a copy with the new
     columns (units in their names) and a ``ranking_note`` per row; rows that lack a
@@ -281,22 +292,43 @@ def cell_metrics(
     sol_ok = np.isfinite(sol) & (sol > 0)
     conc = np.where(sol_ok, np.minimum(conc, np.where(sol_ok, sol, np.inf)), conc)
     capped = conc < settings.concentration_mol_per_l
-    q_vol = volumetric_capacity_ah_per_l(n_e, conc)
+    from redoxfront.ranking.windows import solvent_window, window_flags
+
+    window = solvent_window(solvent or "", ref, ph=settings.ph, water_overpotential_v=settings.water_overpotential_v,
+                            low_v=settings.window_low_v, high_v=settings.window_high_v,
+                            user_v_vs_fc=user_reference_v_vs_fc)
+    n_used = n_e
+    if solvent == "water" and window is not None:
+        from redoxfront.ranking.water import electrons_in_window
+
+        raw = _numeric(out, col.potential_uncalibrated(ref)).to_numpy()
+        offsets = np.column_stack([_numeric(out, col.potential_uncalibrated(ref, k)).to_numpy() - raw
+                                   for k in (1, 2)])
+        n_used, wnotes = electrons_in_window(e, offsets, role, n_e, window)
+        for r, text in enumerate(wnotes):
+            if text:
+                notes[r].append(text)
+        out[col.ELECTRONS_AT_PH] = n_used
+    q_vol = volumetric_capacity_ah_per_l(n_used, conc)
     mass = _numeric(out, col.MOLAR_MASS).to_numpy()
     for r in np.flatnonzero(~(mass > 0)):
         notes[r].append(f"no valid {col.MOLAR_MASS}: no mAh/g")
-    q_grav = gravimetric_capacity_mah_per_g(n_e, mass)
+    q_grav = gravimetric_capacity_mah_per_g(n_used, mass)
 
     # counter electrolyte
     sign = np.where(role == "anolyte", -1.0, 1.0)  # V = sign * (E - E_counter)
     partner = np.full(n, "", dtype=object)
-    if settings.counter == "potential":
-        ec = float(settings.counter_potential_v)  # type: ignore[arg-type]
+    if settings.counter in ("potential", "published"):
+        if settings.counter == "published":  # no proton in the couple: the same at every pH
+            p = partner_couple(settings.counter_couple)
+            ec = convert_potential(float(p["potential_v_vs_she"]), "she", ref, user_reference_v_vs_fc)
+        else:
+            ec = float(settings.counter_potential_v)  # type: ignore[arg-type]
         v = sign * (e - ec)
         v_lo = np.where(sign > 0, e_lo - ec, ec - e_hi)
         v_hi = np.where(sign > 0, e_hi - ec, ec - e_lo)
         q_counter = None if settings.counter_capacity_ah_per_l is None else np.full(n, settings.counter_capacity_ah_per_l)
-        partner[:] = "fixed"
+        partner[:] = "fixed" if settings.counter == "potential" else settings.counter_couple
     else:
         v = np.full(n, np.nan)
         v_lo = np.full(n, np.nan)
@@ -336,6 +368,7 @@ def cell_metrics(
     w = energy_density_wh_per_l(v, q_vol, q_counter, **kw)
     w_lo = energy_density_wh_per_l(v_lo, q_vol, q_counter, **kw)
     w_hi = energy_density_wh_per_l(v_hi, q_vol, q_counter, **kw)
+    w, w_lo, w_hi = (np.where(q_vol == 0, 0.0, a) for a in (w, w_lo, w_hi))  # no usable electron
 
     # decomposition rate and half-life
     order = resolve_rate_order(out, settings.rate_order)
@@ -389,11 +422,6 @@ def cell_metrics(
     out[col.potential_used_low(ref)] = e_lo
     out[col.potential_used_high(ref)] = e_hi
     out[col.POTENTIAL_FLAG] = pot_flag
-    from redoxfront.ranking.windows import solvent_window, window_flags
-
-    window = solvent_window(solvent or "", ref, ph=settings.ph, water_overpotential_v=settings.water_overpotential_v,
-                            low_v=settings.window_low_v, high_v=settings.window_high_v,
-                            user_v_vs_fc=user_reference_v_vs_fc)
     out[col.WINDOW_FLAG] = window_flags(e_lo, e_hi, window)
     out.attrs["window"] = None if window is None else {"low_v": window.low_v, "high_v": window.high_v,
                                                        "source": window.source}

@@ -31,6 +31,7 @@ from redoxfront.figure_style import (
     LEGEND_SIZE,
     MARKERS,
     MUTED,
+    SERIES,
     TITLE_SIZE,
     plain_text,
     plt,
@@ -240,3 +241,62 @@ def plot_pairwise(table: pd.DataFrame, objectives: Sequence[str], path: str | Pa
     cb.set_label("probability on first front (fill)", fontsize=LABEL_SIZE - 1, color=INK)
     fig.suptitle("Objectives pairwise (large: first front)", fontsize=TITLE_SIZE, color=INK, x=0.02, ha="left")
     return save_figure(fig, path, crop=True)
+
+
+MAX_POURBAIX_PANELS = 12
+"""At most this many picks get a Pourbaix panel (pick order)."""
+
+
+def pourbaix_lines(row: pd.Series, ref: str, ph: float, temperature_k: float, grid: np.ndarray) -> np.ndarray:
+    """E(pH) of a candidate's couple on ``grid``, V vs ``ref``: its used potential at the campaign
+    pH moved along its own Nernst lines (pKa columns; none = pH-independent)."""
+    from redoxfront.engine.proton_coupled import OXIDISED, REDUCED, ProtonCoupledCouple, ProtonSite, parse_pka_list
+
+    sites = [ProtonSite(p, REDUCED) for p in parse_pka_list(row.get(col.PKA_REDUCED), "pKa")]
+    sites += [ProtonSite(p, OXIDISED) for p in parse_pka_list(row.get(col.PKA_OXIDISED), "pKa")]
+    n = int(float(row.get(col.N_ELECTRONS) or 1))
+    couple = ProtonCoupledCouple(0.0, max(n, 1), tuple(sites), temperature_k)
+    e_used = float(row[col.potential_used(ref)])
+    return e_used + couple.shift_v(grid) - couple.shift_v(ph)
+
+
+def plot_pourbaix(picks: pd.DataFrame, ref: str, ref_label: str, ph: float, allowance_v: float,
+                  water_lines_at_ph0: tuple[float, float], path: str | Path,
+                  temperature_k: float = 298.15) -> Path:
+    """One Pourbaix panel (E vs pH 0-14) per pick: the couple's lines through its used potential
+    at the campaign pH, the pKa breakpoints, the water lines (hydrogen and oxygen evolution,
+    1.229 V apart, -59 mV/pH) with the overpotential allowance shaded, the campaign pH marked."""
+    from redoxfront.units import nernst_slope_v_per_ph
+
+    rows = picks.head(MAX_POURBAIX_PANELS)
+    n = max(len(rows), 1)
+    ncols = min(3, n)
+    nrows = int(np.ceil(n / ncols))
+    fig, axes = plt.subplots(nrows, ncols, figsize=(3.3 * ncols, 2.8 * nrows), squeeze=False, sharey=True)
+    grid = np.linspace(0.0, 14.0, 281)
+    slope = nernst_slope_v_per_ph(temperature_k)
+    her = water_lines_at_ph0[0] - slope * grid
+    oer = water_lines_at_ph0[1] - slope * grid
+    for ax in axes.flat[len(rows):]:
+        ax.set_visible(False)
+    for ax, (_, row) in zip(axes.flat, rows.iterrows()):
+        style_axes(ax)
+        ax.fill_between(grid, her - allowance_v, her, color=MUTED, alpha=0.35, linewidth=0)
+        ax.fill_between(grid, oer, oer + allowance_v, color=MUTED, alpha=0.35, linewidth=0)
+        ax.plot(grid, her, color=INK, linestyle="--", linewidth=0.9, label="H2 evolution")
+        ax.plot(grid, oer, color=INK, linestyle=":", linewidth=0.9, label="O2 evolution")
+        if np.isfinite(pd.to_numeric(row.get(col.potential_used(ref)), errors="coerce")):
+            e = pourbaix_lines(row, ref, ph, temperature_k, grid)
+            ax.plot(grid, e, color=SERIES[0], linewidth=1.6, label="couple")
+            for p in [float(x) for x in str(row.get(col.PKA_REDUCED) or "").replace(";", " ").split()
+                      if x not in ("nan",)]:
+                if 0 < p < 14:
+                    ax.axvline(p, color=SERIES[1], linewidth=0.7, alpha=0.8)
+        ax.axvline(ph, color=ACCENT, linewidth=1.0)
+        ax.set_title(str(row[col.ID]), fontsize=LABEL_SIZE, color=INK)
+        ax.set_xlim(0, 14)
+        ax.set_xlabel("pH", fontsize=LABEL_SIZE)
+    for ax in axes[:, 0]:
+        ax.set_ylabel(f"E (V vs {ref_label})", fontsize=LABEL_SIZE)
+    axes.flat[0].legend(fontsize=LEGEND_SIZE, frameon=False, loc="lower left")
+    return save_figure(fig, path)

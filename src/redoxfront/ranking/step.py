@@ -215,12 +215,20 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
     results/ranking.csv, results/picks.csv, results/ranking_summary.json and the figures
     under results/figures/; returns the ranked table."""
 
-    from redoxfront.campaign import section_from_mapping
+    from redoxfront.campaign import aqueous_settings, section_from_mapping
     from redoxfront.errors import InputError
     from redoxfront.ranking.cell_metrics import CellSettings, cell_metrics, truthy
     from redoxfront.ranking.symmetric_cell import symmetric_cell_metrics
 
     cell_settings = section_from_mapping(CellSettings, campaign.section("cell"), "cell")
+    aqueous = aqueous_settings(campaign)
+    if aqueous is not None:  # one pH for the whole campaign: [aqueous] ph
+        given = campaign.section("cell").get("ph")
+        if given is not None and float(given) != aqueous.ph:
+            raise SettingsError(
+                f"[cell] ph = {given} differs from [aqueous] ph = {aqueous.ph}: the campaign has one pH; "
+                "remove [cell] ph (an aqueous campaign takes it from [aqueous])")
+        cell_settings = dataclasses.replace(cell_settings, ph=aqueous.ph)
     settings = ranking_settings(campaign)
     src = campaign.results_dir / "predictions.csv"
     if not src.exists():
@@ -303,11 +311,36 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
         "reference": campaign.compute.reference,
         "symmetric_cells": _symmetric_summary(result.table),
     }
+    if aqueous is not None:
+        summary["aqueous"] = {
+            "ph": aqueous.ph, "temperature_k": aqueous.temperature_k,
+            "water_overpotential_v": cell_settings.water_overpotential_v,
+            "n_losing_electrons_to_the_window": int(
+                (pd.to_numeric(result.table[col.ELECTRONS_AT_PH], errors="coerce")
+                 < pd.to_numeric(result.table[col.N_ELECTRONS], errors="coerce")).sum())
+            if col.ELECTRONS_AT_PH in result.table else 0,
+        }
+        if cell_settings.counter == "published":
+            from redoxfront.units import partner_couple
+
+            summary["partner"] = {k: v for k, v in partner_couple(cell_settings.counter_couple).items()}
     write_json(out_dir / "ranking_summary.json", summary)
-    from redoxfront.ranking.figures import plot_front, plot_pairwise
+    from redoxfront.ranking.figures import plot_front, plot_pairwise  # noqa: I001
 
     fig_dir = out_dir / "figures"
     plot_front(result.table, result.objectives, fig_dir / "front.svg")
     if len(result.objectives) > 2:  # with two, the front figure is the only pair
         plot_pairwise(result.table, result.objectives, fig_dir / "objectives_pairwise.svg")
+    if aqueous is not None:
+        from redoxfront.ranking.figures import plot_pourbaix
+        from redoxfront.units import convert_potential, water_lines_v_vs_she
+
+        user_v = campaign.compute.user_reference_v_vs_fc
+        lines0 = tuple(convert_potential(x, "she", campaign.compute.reference, user_v)
+                       for x in water_lines_v_vs_she(0.0, aqueous.temperature_k))
+        picks = result.picks if len(result.picks) else result.table.head(6)
+        plot_pourbaix(picks, campaign.compute.reference,
+                      reference_label(campaign.compute.reference, campaign.compute.user_reference_name),
+                      aqueous.ph, cell_settings.water_overpotential_v, lines0, fig_dir / "pourbaix_picks.svg",
+                      aqueous.temperature_k)
     return result.table

@@ -23,13 +23,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from redoxfront.units import convert_potential
+from redoxfront.units import OXYGEN_EVOLUTION_V_VS_SHE, convert_potential, nernst_slope_v_per_ph
 
-NERNST_SLOPE_V_PER_PH: float = 0.05916
-"""RT ln 10 / F at 298.15 K, V per pH unit (CODATA 2018 constants)."""
-OXYGEN_EVOLUTION_V_VS_SHE: float = 1.229
-"""Standard potential of O2 + 4 H+ + 4 e- -> 2 H2O, V vs SHE (Bard, Parsons & Jordan, Standard
-Potentials in Aqueous Solution, 1985)."""
+NERNST_SLOPE_V_PER_PH: float = nernst_slope_v_per_ph()
+"""RT ln 10 / F at 298.15 K, V per pH unit (CODATA 2018 constants; from units.py)."""
 
 NONAQUEOUS_WINDOWS_V_VS_FC: dict[str, tuple[float, float]] = {
     # engine solvent keyword: (reduction limit, oxidation limit), V vs Fc+/Fc, 0.1 M TBAPF6

@@ -19,11 +19,12 @@ import numpy as np
 import pandas as pd
 
 from redoxfront import columns
-from redoxfront.campaign import Campaign, bounded, section_from_mapping
+from redoxfront.campaign import Campaign, aqueous_settings, bounded, section_from_mapping
 from redoxfront.errors import DataError, InputError
 from redoxfront.outputs import read_table, write_csv, write_json
+from redoxfront.statistics.measured_ph import MEASURED_PH_NOTE, move_measured_to_ph
 from redoxfront.statistics.regression import OLSModel
-from redoxfront.units import convert_potential, reference_key, reference_label
+from redoxfront.units import STANDARD_TEMPERATURE_K, convert_potential, reference_key, reference_label
 
 STATUS_CALIBRATED = "calibrated"
 STATUS_OUTSIDE = "calibrated (outside calibration range)"
@@ -125,7 +126,10 @@ def read_measured_potentials(path: Path, reference: str, compute_solvent: str | 
     Returns columns ``id``, ``measured_v`` (V vs reference), ``uncertainty_v`` (half-width
     of the measurement's 95 % interval, V, where the optional column gives it), ``class``
     and ``process`` ('reduction' or 'oxidation': which couple of a bipolar candidate was
-    measured) if given, plus notes on skipped rows. Rows with an unknown reference or non-numeric
+    measured) if given, plus notes on skipped rows. An optional ``ph`` column (aqueous campaigns)
+    is kept per row, unaveraged (the rows are moved to the campaign pH first,
+    :func:`redoxfront.statistics.measured_ph.move_measured_to_ph`); a row vs RHE needs it. Rows
+    with an unknown reference or non-numeric
     value are skipped with a note (a bad row never stops the batch). Rows measured in
     another solvent than ``compute_solvent`` (engine keyword) get a note; an Fc+/Fc
     reference in water gets a warning.
@@ -151,16 +155,25 @@ def read_measured_potentials(path: Path, reference: str, compute_solvent: str | 
         except (TypeError, ValueError):
             notes.append(f"{path.name} row {i + 2} ({rid}): potential_v {r['potential_v']!r} is not a number; skipped")
             continue
+        ph = math.nan
+        if "ph" in df.columns and str(r["ph"]).strip() not in ("", "nan", "None"):
+            try:
+                ph = float(r["ph"])
+            except (TypeError, ValueError):
+                notes.append(f"{path.name} row {i + 2} ({rid}): ph {r['ph']!r} is not a number; skipped")
+                continue
         try:
             ref_text = str(r["reference"]).strip()
             user_name, user_v = user_reference or ("", None)
             if user_name and ref_text.lower() == user_name.strip().lower():
                 ref_text = "user"
-            v = convert_potential(v, ref_text, reference, user_v)
+            v = convert_potential(v, ref_text, reference, user_v, ph=ph if math.isfinite(ph) else None)
         except Exception as exc:  # unknown electrode name
             notes.append(f"{path.name} row {i + 2} ({rid}): {exc}; skipped")
             continue
         row = {"id": rid, "measured_v": v}
+        if "ph" in df.columns:
+            row["ph"] = ph
         if "uncertainty_v" in df.columns:
             try:
                 u = float(r["uncertainty_v"])
@@ -184,8 +197,10 @@ def read_measured_potentials(path: Path, reference: str, compute_solvent: str | 
             f"measured potentials come from several solvents ({', '.join(solvents)}); "
             "reference conversions assume one solvent, calibrate per solvent if values differ"
         )
-    extra = [c for c in ("uncertainty_v", "class", "process") if c in df.columns]
+    extra = [c for c in ("uncertainty_v", "class", "process", "ph") if c in df.columns]
     out = pd.DataFrame(rows, columns=["id", "measured_v"] + extra)
+    if "ph" in out.columns:  # averaged after each row is moved to the campaign pH
+        return out, notes
     keys = ["id", "process"] if "process" in out.columns else ["id"]
     if out.duplicated(keys).any():
         notes.append("some ids were measured more than once; their values were averaged")
@@ -234,11 +249,15 @@ def calibrate_table(
     measured: pd.DataFrame | None,
     reference: str,
     settings: CalibrationSettings = CalibrationSettings(),
+    campaign_ph: float | None = None,
+    temperature_k: float = STANDARD_TEMPERATURE_K,
 ) -> tuple[pd.DataFrame, CalibrationReport]:
     """Add the calibrated potential, its 95 % PI and the calibration status to ``table``.
 
     Without measured data every row is 'uncalibrated' and the calibrated columns are NaN.
     Only rows with status 'ok' and a finite raw potential are calibrated or used to fit.
+    ``campaign_ph`` (aqueous campaigns): measured values are first moved to that pH along each
+    couple's Nernst lines (:mod:`redoxfront.statistics.measured_ph`), flagged across a pKa.
     """
     ref = reference_key(reference)
     raw_col = columns.potential_uncalibrated(ref)
@@ -263,6 +282,15 @@ def calibrate_table(
     bipolar_ids = set(t.loc[bipolar, columns.ID])
     measured_bipolar = measured[measured["id"].isin(bipolar_ids)]
     measured = measured[~measured["id"].isin(bipolar_ids)]
+    if campaign_ph is not None:
+        measured, ph_notes = move_measured_to_ph(measured, t, campaign_ph, temperature_k)
+        notes += ph_notes
+        t[MEASURED_PH_NOTE] = t[columns.ID].map(measured.set_index("id")[MEASURED_PH_NOTE]).fillna("")
+    elif "ph" in measured.columns:
+        notes.append("the measured file has a 'ph' column but the campaign no [aqueous] section: pH ignored")
+        agg = {c: ("mean" if c == "measured_v" else "max" if c == "uncertainty_v" else "first")
+               for c in measured.columns if c not in ("id", "ph", "process")}
+        measured = measured.groupby("id", as_index=False, sort=False).agg(agg)
     if "process" in measured.columns:
         measured = measured.drop(columns="process").drop_duplicates("id")
     if measured.empty:  # only bipolar candidates were measured
@@ -416,7 +444,10 @@ def calibrate_campaign(campaign: Campaign) -> pd.DataFrame:
             campaign.path(campaign.inputs.measured_potentials, "[inputs] measured_potentials"), ref,
             campaign.compute.solvent,
             (campaign.compute.user_reference_name, campaign.compute.user_reference_v_vs_fc))
-    out, report = calibrate_table(table, measured, ref, settings)
+    aqueous = aqueous_settings(campaign)
+    out, report = calibrate_table(table, measured, ref, settings,
+                                  campaign_ph=aqueous.ph if aqueous is not None else None,
+                                  temperature_k=aqueous.temperature_k if aqueous is not None else STANDARD_TEMPERATURE_K)
     write_csv(out, path)
     d = report.to_dict()
     d["reference_label"] = reference_label(ref, campaign.compute.user_reference_name)
