@@ -304,6 +304,10 @@ def cell_metrics(
         raw = _numeric(out, col.potential_uncalibrated(ref)).to_numpy()
         offsets = np.column_stack([_numeric(out, col.potential_uncalibrated(ref, k)).to_numpy() - raw
                                    for k in (1, 2)])
+        # a couple moving protons at this pH: its one-electron steps are not the computed
+        # electron-transfer steps (the semiquinone's pKa is not computed), so it is judged whole
+        protons = _numeric(out, col.PROTONS_AT_PH).to_numpy()
+        offsets[np.isfinite(protons) & (protons != 0)] = np.nan
         n_used, wnotes = electrons_in_window(e, offsets, role, n_e, window)
         for r, text in enumerate(wnotes):
             if text:

@@ -247,15 +247,20 @@ MAX_POURBAIX_PANELS = 12
 """At most this many picks get a Pourbaix panel (pick order)."""
 
 
+def _sites(row: pd.Series) -> list:
+    from redoxfront.engine.proton_coupled import OXIDISED, REDUCED, ProtonSite, parse_pka_list
+
+    sites = [ProtonSite(p, REDUCED) for p in parse_pka_list(row.get(col.PKA_REDUCED), "pKa")]
+    return sites + [ProtonSite(p, OXIDISED) for p in parse_pka_list(row.get(col.PKA_OXIDISED), "pKa")]
+
+
 def pourbaix_lines(row: pd.Series, ref: str, ph: float, temperature_k: float, grid: np.ndarray) -> np.ndarray:
     """E(pH) of a candidate's couple on ``grid``, V vs ``ref``: its used potential at the campaign
     pH moved along its own Nernst lines (pKa columns; none = pH-independent)."""
-    from redoxfront.engine.proton_coupled import OXIDISED, REDUCED, ProtonCoupledCouple, ProtonSite, parse_pka_list
+    from redoxfront.engine.proton_coupled import ProtonCoupledCouple
 
-    sites = [ProtonSite(p, REDUCED) for p in parse_pka_list(row.get(col.PKA_REDUCED), "pKa")]
-    sites += [ProtonSite(p, OXIDISED) for p in parse_pka_list(row.get(col.PKA_OXIDISED), "pKa")]
     n = int(float(row.get(col.N_ELECTRONS) or 1))
-    couple = ProtonCoupledCouple(0.0, max(n, 1), tuple(sites), temperature_k)
+    couple = ProtonCoupledCouple(0.0, max(n, 1), tuple(_sites(row)), temperature_k)
     e_used = float(row[col.potential_used(ref)])
     return e_used + couple.shift_v(grid) - couple.shift_v(ph)
 
@@ -288,11 +293,10 @@ def plot_pourbaix(picks: pd.DataFrame, ref: str, ref_label: str, ph: float, allo
         if np.isfinite(pd.to_numeric(row.get(col.potential_used(ref)), errors="coerce")):
             e = pourbaix_lines(row, ref, ph, temperature_k, grid)
             ax.plot(grid, e, color=SERIES[0], linewidth=1.6, label="couple")
-            for p in [float(x) for x in str(row.get(col.PKA_REDUCED) or "").replace(";", " ").split()
-                      if x not in ("nan",)]:
+            for j, p in enumerate(sorted(s.pka for s in _sites(row))):
                 if 0 < p < 14:
-                    ax.axvline(p, color=SERIES[1], linewidth=0.7, alpha=0.8)
-        ax.axvline(ph, color=ACCENT, linewidth=1.0)
+                    ax.axvline(p, color=SERIES[1], linewidth=0.7, alpha=0.8, label="pKa" if j == 0 else None)
+        ax.axvline(ph, color=ACCENT, linewidth=1.0, label=f"campaign pH {ph:g}")
         ax.set_title(str(row[col.ID]), fontsize=LABEL_SIZE, color=INK)
         ax.set_xlim(0, 14)
         ax.set_xlabel("pH", fontsize=LABEL_SIZE)

@@ -338,7 +338,8 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
         user_v = campaign.compute.user_reference_v_vs_fc
         lines0 = tuple(convert_potential(x, "she", campaign.compute.reference, user_v)
                        for x in water_lines_v_vs_she(0.0, aqueous.temperature_k))
-        picks = result.picks if len(result.picks) else result.table.head(6)
+        order = list(result.picks[col.ID]) if len(result.picks) else list(result.table[col.ID].head(6))
+        picks = result.table.set_index(col.ID, drop=False).loc[order]  # the full rows: pKa, potential used
         plot_pourbaix(picks, campaign.compute.reference,
                       reference_label(campaign.compute.reference, campaign.compute.user_reference_name),
                       aqueous.ph, cell_settings.water_overpotential_v, lines0, fig_dir / "pourbaix_picks.svg",

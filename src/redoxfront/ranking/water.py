@@ -6,7 +6,9 @@ The window itself (hydrogen and oxygen evolution lines at ``[cell] ph``, 1.229 V
 couple's potential interval. Here each one-electron step of a couple is judged: an anolyte
 step below the hydrogen line, or a catholyte step above the oxygen line, evolves gas instead
 of charging the molecule, so it does not count as an electron that transfers at that pH;
-capacity and energy density use the rest. One-electron couples are judged on their potential.
+capacity and energy density use the rest. One-electron couples, and couples that move protons
+at the campaign pH (whose one-electron steps are not the computed electron-transfer steps),
+are judged on their potential as a whole.
 Units: V vs the campaign reference.
 """
 

@@ -23,7 +23,7 @@ from redoxfront.campaign import Campaign
 from redoxfront.figure_style import svg_for_html
 from redoxfront.report import formatting as F
 from redoxfront.report import narrative
-from redoxfront.report.safety import SAFETY_NOTES
+from redoxfront.report.safety import AQUEOUS_SAFETY_NOTES, SAFETY_NOTES
 from redoxfront.report.structures import structure_svg
 
 MAX_TABLE_ROWS = 2000
@@ -225,6 +225,28 @@ def front_section(res: Path, summary: dict[str, Any]) -> dict[str, Any]:
             "hypervolume_fraction": F.fixed(summary.get("hypervolume_fraction"), 2), "figures": figs}
 
 
+def pourbaix_section(res: Path, summary: dict[str, Any], desc: Any, label: str) -> dict[str, Any]:
+    """The aqueous picks against pH: figure, campaign pH, partner and pKa provenance."""
+    aq = summary.get("aqueous", {})
+    sources = set()
+    if desc is not None and C.PKA_SOURCE in desc.columns:
+        sources = set(desc[C.PKA_SOURCE].dropna().astype(str)) - {"none", ""}
+    words = {"estimated": "estimated pKa values carry a stated +-3 units and are flagged 'estimated'",
+             "given": "given pKa values as stated in the candidates file"}
+    partner = summary.get("partner") or {}
+    return {
+        "ph": F.fixed(aq.get("ph"), 1),
+        "reference": label,
+        "overpotential": F.fixed(aq.get("water_overpotential_v"), 2) if aq.get("water_overpotential_v") else "",
+        "n_losing": aq.get("n_losing_electrons_to_the_window", 0),
+        "partner": (f"{partner.get('label')} at {partner.get('potential_v_vs_she')} V vs SHE "
+                    f"({partner.get('source')})") if partner else "",
+        "pka_words": "; ".join(words[s] for s in sorted(sources) if s in words) or "no pKa known: flat lines",
+        "figure": figure(res, "pourbaix_picks", "Picks against pH",
+                         "E vs pH of each pick with the water lines and the campaign's pH."),
+    }
+
+
 def gather(campaign: Campaign, title: str, note: str) -> dict[str, Any]:
     """The whole report as a plain dict: one key per section, in reading order."""
     res = campaign.results_dir
@@ -255,10 +277,11 @@ def gather(campaign: Campaign, title: str, note: str) -> dict[str, Any]:
         "summary": narrative.summary_paragraphs(desc, tab, cards, card_basis, models, summary, ranked, campaign),
         "picks": {"cards": cards, "basis": card_basis, "ranked": ranked,
                   "why_none": narrative.why_no_picks(campaign, ranked, res)},
-        "safety": list(SAFETY_NOTES),
+        "safety": list(SAFETY_NOTES) + (list(AQUEOUS_SAFETY_NOTES) if campaign.compute.solvent == "water" else []),
         "assumptions": narrative.assumptions(campaign, cell, desc, summary, label),
         "method": narrative.method_line(campaign, desc),
         "front": front_section(res, summary) if ranked else None,
+        "pourbaix": pourbaix_section(res, summary, desc, label) if ranked and summary.get("aqueous") else None,
         "table": tab,
         "table_source": source,
         **models,

@@ -17,3 +17,17 @@ SAFETY_NOTES: tuple[str, ...] = (
     "check pressure ratings, use secondary containment for the electrolyte tanks, and never leave "
     "a cell cycling unattended without the safeguards your site requires.",
 )
+
+AQUEOUS_SAFETY_NOTES: tuple[str, ...] = (
+    "Alkaline (e.g. 1 M KOH or NaOH) and acidic (e.g. 1 M H2SO4) supporting electrolytes are corrosive "
+    "to skin and eyes, and alkali attacks glass and some seals: wear eye protection and gloves rated "
+    "for them, and check every wetted part of the rig against the electrolyte.",
+    "An anolyte charged near or beyond the hydrogen-evolution line makes hydrogen gas, and a catholyte "
+    "beyond the oxygen line makes oxygen: vent the tanks, keep ignition sources away, and do not "
+    "let the gas collect in a closed headspace. The water-window flags in this report are "
+    "thermodynamic estimates, not a guarantee that no gas forms.",
+    "Ferro/ferricyanide is stable in neutral and alkaline solution but releases hydrogen cyanide "
+    "with strong acid: never mix it with acidic electrolyte or waste. Follow the safety data sheets, "
+    "your local codes and licensed practice.",
+)
+"""Extra notes for campaigns in water (shown with :data:`SAFETY_NOTES`)."""
