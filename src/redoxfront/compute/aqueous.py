@@ -200,6 +200,9 @@ def add_proton_coupling(row: dict[str, Any], candidate: Candidate, states: Any, 
     """The row of an aqueous candidate: potentials at the campaign pH and the proton columns.
     A protonation form that fails marks the row failed (its pH potential would be a guess)."""
     ref = settings.reference
+    if candidate.role not in ("anolyte", "catholyte"):  # bipolar: two couples, protons not modelled
+        return {**row, C.CAMPAIGN_PH: aqueous.ph, C.PKA_SOURCE: "none",
+                C.PROTONATION_FORMS: f"{candidate.role}: proton coupling not modelled (potentials pH-independent)"}
     anchor = row[C.potential_uncalibrated(ref)]
     reduced = states.states["charged" if candidate.role == "anolyte" else "discharged"].lowest.energy_eh
     try:
