@@ -101,11 +101,44 @@ def test_per_class_lines():
         calibrate_table(t.drop(columns="class"), measured, "fc", CalibrationSettings(per_class=True))
 
 
-def test_too_few_measurements_raise():
+@pytest.mark.parametrize("n", [1, 2])
+def test_too_few_measurements_leave_potentials_uncalibrated_with_a_note(n):
+    # a line has two parameters; with fewer than three points nothing estimates its scatter
+    # (common practice, no source): the run goes on uncalibrated and says why
     t = make_table()
-    measured = pd.DataFrame({"id": ["dmb-0", "dmb-1"], "measured_v": [0.3, 0.5]})
-    with pytest.raises(DataError, match="need at least 3; add 1 more"):
-        calibrate_table(t, measured, "fc")
+    measured = pd.DataFrame({"id": [f"dmb-{i}" for i in range(n)], "measured_v": [0.3, 0.5][:n]})
+    out, rep = calibrate_table(t, measured, "fc")
+    assert rep.lines == () and (out[columns.CALIBRATION_STATUS] == STATUS_UNCALIBRATED).all()
+    assert out[CAL].isna().all()
+    assert any(f"only {n} usable measured potential(s); a calibration line needs at least 3" in x for x in rep.notes)
+
+
+def test_one_residual_degree_of_freedom_is_written_only_with_a_warning(tmp_path):
+    from click.testing import CliRunner
+
+    from redoxfront.cli import main
+
+    (tmp_path / "results").mkdir()
+    (tmp_path / "inputs").mkdir()
+    t = make_table()
+    t.to_csv(tmp_path / "results" / "descriptors.csv", index=False)
+    pd.DataFrame({"id": ["dmb-0", "dmb-1", "dmb-2"], "potential_v": [0.25, 0.37, 0.46],
+                  "reference": "Fc+/Fc", "solvent": "MeCN"}).to_csv(tmp_path / "inputs" / "m.csv", index=False)
+    (tmp_path / "campaign.toml").write_text('[inputs]\nmeasured_potentials = "inputs/m.csv"\n')
+    r = CliRunner().invoke(main, ["calibrate", str(tmp_path)])
+    assert r.exit_code == 0, r.output
+    # n = 3 points for intercept + slope: n - p - 1 = 1 residual degree of freedom
+    assert "WARNING: 3 rows for 1 term(s) + intercept leave one residual degree of freedom" in r.output
+    info = json.loads((tmp_path / "results" / "calibration.json").read_text())
+    assert len(info["warnings"]) == 1 and "one residual degree of freedom" in info["warnings"][0]
+    again = pd.read_csv(tmp_path / "results" / "descriptors.csv", keep_default_na=False)
+    ok = again["status"] == "ok"
+    assert again.loc[ok, columns.CALIBRATION_WARNING].str.contains("one residual degree of freedom").all()
+    from redoxfront.campaign import load_campaign as _load
+    from redoxfront.report import write_report
+
+    html = write_report(_load(tmp_path)).read_text()
+    assert '<p class="warn" role="alert"><b>calibration line &#39;all&#39;: WARNING: 3 rows' in html
 
 
 def test_read_measured_converts_references(tmp_path):

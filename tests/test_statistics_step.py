@@ -171,3 +171,27 @@ def test_an_infinite_rate_is_left_out_like_a_missing_one(tmp_path):
     assert rep.n_train == 9 and np.isfinite(rep.statistics["r2"])
     assert any("infinite, left out like missing ones: dmb-00, dmb-01" in n for n in rep.notes)
     assert any("without a value, left out: dmb-02" in n for n in rep.notes)
+
+
+def test_a_model_with_one_residual_degree_of_freedom_warns_in_every_output(tmp_path):
+    # 4 rates for 2 terms + intercept: n - p - 1 = 1 (common practice, no source)
+    folder = make_campaign(tmp_path, model_toml="[model]\nn_permutations = 100\nkfold = 2\n", n=4)
+    rep = fit_campaign(load_campaign(folder))
+    assert rep.n_train == 4
+    text = rep.text()
+    assert text.startswith("WARNING: 4 rows for 2 term(s) + intercept leave one residual degree of freedom")
+    import json
+
+    model = json.loads(rep.model_path.read_text())
+    assert model["context"]["warnings"] == [text.splitlines()[0]]
+    pred = pd.read_csv(rep.predictions_path, keep_default_na=False)
+    assert (pred[columns.MODEL_WARNING] == text.splitlines()[0]).all()
+    from redoxfront.report import write_report
+
+    html = write_report(load_campaign(folder)).read_text()
+    assert '<p class="warn" role="alert"><b>WARNING: 4 rows for 2 term(s)' in html
+    # one more row: two degrees of freedom, no warning anywhere
+    folder5 = make_campaign(tmp_path / "five", model_toml="[model]\nn_permutations = 100\nkfold = 2\n", n=5)
+    rep5 = fit_campaign(load_campaign(folder5))
+    assert "WARNING" not in rep5.text()
+    assert (pd.read_csv(rep5.predictions_path, keep_default_na=False)[columns.MODEL_WARNING] == "").all()

@@ -176,6 +176,8 @@ def calibrate_command(campaign: Path) -> None:
         click.echo(f"{count} candidate(s): {status}")
     for note in info.get("notes", []):
         click.echo(f"note: {note}", err=True)
+    for warning in info.get("warnings", []):
+        click.echo(warning, err=True)
 
 
 @main.command("fit")

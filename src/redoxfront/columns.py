@@ -185,6 +185,10 @@ EXPECTED_HV_GAIN = "expected_hypervolume_gain"
 PICK_ORDER = "pick_order"
 
 # --- calibration and rate model (appended by the statistics step) -------------
+CALIBRATION_WARNING = "calibration_warning"
+"""Rows calibrated with a line of one residual degree of freedom carry its warning; else ''."""
+MODEL_WARNING = "model_warning"
+"""Every prediction of a rate model with one residual degree of freedom carries its warning."""
 CALIBRATION_GROUP = "calibration_group"
 """Which calibration line a row used: 'all' (pooled) or its compound class."""
 STANDARDISED_RESIDUAL = "standardised_residual"

@@ -102,8 +102,12 @@ def run_campaign(
 
     table = calibrate_campaign(camp)
     cal = table.attrs.get("calibration", {})
+    few = next((n for n in cal.get("notes", []) if n.startswith("only ") and "measured potential" in n), None)
     note("calibrate", f"calibrated against {cal['n_measured_used']} measured potentials (results/calibration.json)"
-         if cal.get("lines") else "skipped: no usable measured potentials; potentials stay uncalibrated")
+         if cal.get("lines") else f"skipped: {few}" if few
+         else "skipped: no usable measured potentials; potentials stay uncalibrated")
+    for w in cal.get("warnings", []):
+        note("", w)
     note("", "potentials: " + ", ".join(f"{k} {v}" for k, v in potential_counts(table, camp.compute.reference).items()))
 
     rates_given = camp.inputs.measured_rates or (camp.results_dir / "rates.csv").exists()
@@ -113,6 +117,8 @@ def run_campaign(
         note("fit", f"model on {', '.join(fit.terms)}: R2 {stats.get('r2') or float('nan'):.3f}, "
                     f"Q2(LOO) {stats.get('q2_loo') or float('nan'):.3f} (results/model.json, results/predictions.csv)")
         note("", "rates that trained the model: " + ", ".join(f"{k} {v}" for k, v in fit.rate_sources.items()))
+        for w in (n for n in fit.notes if n.startswith("WARNING:")):
+            note("", w)
     else:
         note("fit", "skipped: no measured rates and no fitted fade rates")
     needs_model = "half_life" in ranking_objectives(camp)

@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import base64
 import datetime as _dt
-import json
 from pathlib import Path
 from typing import Any
 
@@ -21,6 +20,7 @@ from redoxfront import __version__
 from redoxfront import columns as C
 from redoxfront.campaign import Campaign
 from redoxfront.figure_style import svg_for_html
+from redoxfront.outputs import read_json_file, read_table, regenerate_hint
 from redoxfront.report import formatting as F
 from redoxfront.report import narrative
 from redoxfront.report.safety import AQUEOUS_SAFETY_NOTES, SAFETY_NOTES
@@ -34,14 +34,11 @@ def read_csv(path: Path) -> pd.DataFrame | None:
     """A result table with ids and user strings as text, or None when absent."""
     if not path.exists():
         return None
-    df = pd.read_csv(path, dtype={C.ID: str, C.SMILES: str}, keep_default_na=True)
-    if C.ID in df.columns:
-        df[C.ID] = df[C.ID].fillna("").astype(str)
-    return df
+    return read_table(path, remedy=regenerate_hint(path))  # 'NA' and '001' stay ids
 
 
 def read_json(path: Path) -> dict[str, Any] | None:
-    return json.loads(path.read_text(encoding="utf-8")) if path.exists() else None
+    return read_json_file(path, remedy=regenerate_hint(path)) if path.exists() else None
 
 
 def figure(res: Path, stem: str, title: str, caption: str = "") -> dict[str, str] | None:

@@ -192,7 +192,8 @@ def model_facts(model: Mapping[str, Any], ref: str, label: str) -> dict[str, Any
         "equation": eq,
         "stats": [{"label": a, "value": F.number(b, k, d)} for a, b, k, d in stats if F.as_float(b) is not None],
         "coefficients": coef_rows,
-        "notes": [str(n) for n in ctx.get("notes", []) or []],
+        "notes": [str(n) for n in ctx.get("notes", []) or [] if not str(n).startswith("WARNING:")],
+        "warnings": [str(w) for w in ctx.get("warnings", []) or []],
         "n_permutations": yr.get("n_permutations"),
     }
 
@@ -234,6 +235,7 @@ def calibration_facts(cal: Mapping[str, Any], label: str) -> dict[str, Any]:
             "range": f"{F.fixed(ln.get('computed_min_v'), 2)} to {F.fixed(ln.get('computed_max_v'), 2)} V",
         })
     return {"lines": lines, "notes": [str(n) for n in cal.get("notes", [])],
+            "warnings": [str(w) for w in cal.get("warnings", []) or []],
             "n_measured": cal.get("n_measured_used"), "reference": label}
 
 

@@ -23,7 +23,7 @@ from redoxfront.campaign import Campaign, aqueous_settings, bounded, section_fro
 from redoxfront.errors import DataError, InputError
 from redoxfront.outputs import read_table, write_csv, write_json
 from redoxfront.statistics.measured_ph import MEASURED_PH_NOTE, move_measured_to_ph
-from redoxfront.statistics.regression import OLSModel
+from redoxfront.statistics.regression import OLSModel, one_dof_warning
 from redoxfront.units import STANDARD_TEMPERATURE_K, convert_potential, reference_key, reference_label
 
 STATUS_CALIBRATED = "calibrated"
@@ -31,6 +31,11 @@ STATUS_OUTSIDE = "calibrated (outside calibration range)"
 STATUS_UNCALIBRATED = "uncalibrated"
 POOLED = "all"
 MEASURED_COLUMNS = ("id", "potential_v", "reference", "solvent")
+
+
+MIN_CALIBRATION_POINTS = 3
+"""Fewest measured potentials a calibration line is fitted to (intercept, slope and one
+residual degree of freedom); with fewer, potentials stay uncalibrated with a note."""
 
 
 @dataclass(frozen=True)
@@ -108,11 +113,14 @@ class CalibrationReport:
     lines: tuple[LineFit, ...]
     n_measured_used: int
     notes: tuple[str, ...]
+    warnings: tuple[str, ...] = ()
+    """Prominent warnings (a line with one residual degree of freedom), also in every output."""
 
     def to_dict(self) -> dict[str, Any]:
         return {
             "reference": self.reference,
             "n_measured_used": self.n_measured_used,
+            "warnings": list(self.warnings),
             "lines": [l.__dict__ for l in self.lines],
             "notes": list(self.notes),
         }
@@ -310,6 +318,14 @@ def calibrate_table(
     if not_ok:
         notes.append(f"measured id(s) whose computation failed, ignored in the fit: {', '.join(not_ok[:20])}")
     train = usable & t[meas_col].notna()
+    if int(train.sum()) < MIN_CALIBRATION_POINTS:
+        notes.append(
+            f"only {int(train.sum())} usable measured potential(s); a calibration line needs at least "
+            f"{MIN_CALIBRATION_POINTS} (two for the line, one to estimate its scatter): every potential "
+            "stays uncalibrated; measure a few more candidates to calibrate")
+        lines = _calibrate_bipolar(t, measured_bipolar, ref, notes, one_role=(t[meas_col], raw, usable),
+                                   min_points=settings.min_points_per_class)  # bipolar couples go on
+        return t, CalibrationReport(ref, tuple(lines), 0, tuple(notes))
     if settings.per_class:
         if "class" not in t.columns:
             raise DataError(
@@ -333,8 +349,14 @@ def calibrate_table(
                     "it uses the pooled calibration"
                 )
     use_group = group.where(group.isin(list(fits)), POOLED)
+    warnings: list[str] = []
+    t[columns.CALIBRATION_WARNING] = ""
     for g, idx in use_group[usable].groupby(use_group[usable]).groups.items():
         cal = fits.get(str(g), pooled)
+        if cal.model_.residual_dof_ == 1:  # n = 3 for a line: written, but never without this
+            w = f"calibration line '{g}': " + one_dof_warning(cal.line_.n, 1)
+            warnings.append(w)
+            t.loc[idx, columns.CALIBRATION_WARNING] = w
         pr = cal.predict(raw[idx].to_numpy())
         t.loc[idx, cal_col] = pr["value"].to_numpy()
         t.loc[idx, lo_col] = pr["low"].to_numpy()
@@ -349,7 +371,7 @@ def calibrate_table(
         )
     lines += _calibrate_bipolar(t, measured_bipolar, ref, notes, one_role=(t[meas_col], raw, usable),
                                 min_points=settings.min_points_per_class)
-    return t, CalibrationReport(ref, tuple(lines), int(train.sum()), tuple(notes))
+    return t, CalibrationReport(ref, tuple(lines), int(train.sum()), tuple(notes), tuple(warnings))
 
 
 def _is_bipolar(t: pd.DataFrame) -> pd.Series:

@@ -137,6 +137,13 @@ class YRandomisation:
         }
 
 
+def one_dof_warning(n: int, p: int) -> str:
+    """The warning every output carries for a fit with one residual degree of freedom (n = p + 2)."""
+    return (f"WARNING: {n} rows for {p} term(s) + intercept leave one residual degree of freedom: "
+            "the scatter, standard errors, prediction intervals and Q2 rest on a single spare point "
+            "and cannot be trusted; add measured rows before acting on this fit")
+
+
 class OLSModel:
     """Ordinary least squares with intercept, validation statistics and intervals.
 
@@ -244,6 +251,9 @@ class OLSModel:
                 )
         if np.isnan(self.q2_loo_):
             self.warnings_.append("a training row has leverage 1; LOO Q2 is undefined")
+        self.residual_dof_ = n - p - 1
+        if self.residual_dof_ == 1:
+            self.warnings_.insert(0, one_dof_warning(n, p))
 
     def _kfold_q2(self) -> tuple[float, np.ndarray]:
         """k-fold Q2 in closed form: each fold's held-out residuals are (I - H_FF)^-1 e_F."""

@@ -95,7 +95,8 @@ class FitReport:
     def text(self) -> str:
         """A short plain-text summary for the terminal."""
         s = self.statistics
-        lines = [f"{self.target} = fitted on {self.n_train} rows, terms: {', '.join(self.terms)}"]
+        lines = [n for n in self.notes if n.startswith("WARNING:")]  # first, where nobody misses them
+        lines.append(f"{self.target} = fitted on {self.n_train} rows, terms: {', '.join(self.terms)}")
         if self.rate_sources:
             lines.append("rates: " + ", ".join(f"{k} {v}" for k, v in self.rate_sources.items()))
         lines.append(self.coefficients.to_string(index=False, float_format=lambda v: f"{v:.4g}"))
@@ -117,7 +118,7 @@ class FitReport:
         if self.search:
             lines.append(self.search["warning"])
         lines.append(f"{self.n_extrapolating} candidate(s) outside the applicability domain (extrapolating)")
-        lines += [f"note: {n}" for n in self.notes]
+        lines += [f"note: {n}" for n in self.notes if not n.startswith("WARNING:")]
         lines.append(f"model: {self.model_path}  predictions: {self.predictions_path}")
         return "\n".join(lines)
 
@@ -307,6 +308,8 @@ def fit_campaign(campaign: Any) -> FitReport:
     pred = carried.merge(pred, on=columns.ID, how="left")
     out_dir = campaign.results_dir
     out_dir.mkdir(parents=True, exist_ok=True)
+    warnings = [w for w in model.warnings_ if w.startswith("WARNING:")]
+    pred[columns.MODEL_WARNING] = warnings[0] if warnings else ""
     pred_path = out_dir / "predictions.csv"
     write_csv(pred, pred_path)
     n_extra = int((pred[columns.DOMAIN] == "extrapolating").sum())
@@ -321,6 +324,7 @@ def fit_campaign(campaign: Any) -> FitReport:
         "rate_sources": {"files": list(sources.files), "counts": trained_counts,
                          "rule": "a candidate with both a measured and a fitted rate uses the measured value; "
                                  "a measured value outside the fit's 95 % interval is reported"},
+        "warnings": warnings,
         "n_test": int(len(test)),
         "external_validation": external,
         "search": search_summary,
