@@ -65,5 +65,6 @@ def test_invented_aqueous_example_runs_end_to_end(tmp_path: Path) -> None:
     assert (res / "figures" / "pourbaix_picks.svg").exists()
     html = (res / "report.html").read_text()
     assert "Potentials against pH (Pourbaix view)" in html
+    assert "Reduced forms computed" in html and "(estimated, +-3.0)" in html  # forms and pKa provenance per pick
     assert "hydrogen gas" in html and "safety data sheets" in html
     assert "Invented demo" in html

@@ -369,9 +369,10 @@ def cell_metrics(
         notes[r].append(f"cell voltage {v[r]:.3f} V is not positive")
 
     kw = dict(tank_basis=settings.tank_basis, utilisation=settings.utilisation)
-    w = energy_density_wh_per_l(v, q_vol, q_counter, **kw)
-    w_lo = energy_density_wh_per_l(v_lo, q_vol, q_counter, **kw)
-    w_hi = energy_density_wh_per_l(v_hi, q_vol, q_counter, **kw)
+    with np.errstate(invalid="ignore", divide="ignore"):  # no usable electron: 0/0, set to 0 below
+        w = energy_density_wh_per_l(v, q_vol, q_counter, **kw)
+        w_lo = energy_density_wh_per_l(v_lo, q_vol, q_counter, **kw)
+        w_hi = energy_density_wh_per_l(v_hi, q_vol, q_counter, **kw)
     w, w_lo, w_hi = (np.where(q_vol == 0, 0.0, a) for a in (w, w_lo, w_hi))  # no usable electron
 
     # decomposition rate and half-life

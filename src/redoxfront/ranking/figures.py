@@ -299,8 +299,11 @@ def plot_pourbaix(picks: pd.DataFrame, ref: str, ref_label: str, ph: float, allo
         ax.axvline(ph, color=ACCENT, linewidth=1.0, label=f"campaign pH {ph:g}")
         ax.set_title(str(row[col.ID]), fontsize=LABEL_SIZE, color=INK)
         ax.set_xlim(0, 14)
+        ax.set_xticks(range(0, 15, 2))
         ax.set_xlabel("pH", fontsize=LABEL_SIZE)
     for ax in axes[:, 0]:
         ax.set_ylabel(f"E (V vs {ref_label})", fontsize=LABEL_SIZE)
-    axes.flat[0].legend(fontsize=LEGEND_SIZE, frameon=False, loc="lower left")
-    return save_figure(fig, path)
+    handles, labels = axes.flat[0].get_legend_handles_labels()
+    fig.legend(handles, labels, fontsize=LEGEND_SIZE, frameon=False, loc="lower center",
+               ncol=len(labels), bbox_to_anchor=(0.5, -0.06 - 0.1 / nrows))
+    return save_figure(fig, path, crop=True)

@@ -231,7 +231,31 @@ def pourbaix_section(res: Path, summary: dict[str, Any], desc: Any, label: str) 
     words = {"estimated": "estimated pKa values carry a stated +-3 units and are flagged 'estimated'",
              "given": "given pKa values as stated in the candidates file"}
     partner = summary.get("partner") or {}
+    rows = []
+    picks = read_csv(res / "picks.csv")
+    if desc is not None and picks is not None and C.ID in picks.columns and C.ID in desc.columns:
+        d = desc.assign(**{C.ID: desc[C.ID].astype(str)}).drop_duplicates(C.ID).set_index(C.ID)
+        for pid in picks[C.ID].astype(str):
+            if pid not in d.index:
+                continue
+            r = d.loc[pid]
+
+            def text(column: str) -> str:
+                v = r.get(column)
+                return "" if v is None or (isinstance(v, float) and pd.isna(v)) else str(v)
+
+            unc = text(C.PKA_UNCERTAINTY)
+            rows.append({
+                "id": pid, "forms": text(C.PROTONATION_FORMS) or "none (no proton site)",
+                "pka": (text(C.PKA_REDUCED) or "none") + (f" ({text(C.PKA_SOURCE)}"
+                                                          + (f", +-{F.fixed(float(unc), 1)}" if unc not in ("", "0.0") else "")
+                                                          + ")" if text(C.PKA_SOURCE) else ""),
+                "pka_ox": text(C.PKA_OXIDISED),
+                "protons": text(C.PROTONS_AT_PH),
+                "slope": F.fixed(1000 * float(r[C.NERNST_SLOPE_AT_PH]), 1) if text(C.NERNST_SLOPE_AT_PH) else "",
+            })
     return {
+        "rows": rows,
         "ph": F.fixed(aq.get("ph"), 1),
         "reference": label,
         "overpotential": F.fixed(aq.get("water_overpotential_v"), 2) if aq.get("water_overpotential_v") else "",
