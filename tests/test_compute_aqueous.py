@@ -76,3 +76,21 @@ def test_rhe_cannot_be_the_campaign_reference(tmp_path: Path) -> None:
     (folder / "campaign.toml").write_text(text)
     with pytest.raises(SettingsError, match="moves with pH"):
         load_campaign(folder)
+
+
+def test_a_catholyte_written_deprotonated_uses_its_given_pka_values() -> None:
+    # Clark 1960 / CRC (from memory): hydroquinone pKa 9.85 and 11.4; a catholyte written as the
+    # dianion Q2- with these pKa values moves 2 H+ per 2 e- below 9.85, none above 11.4
+    from redoxfront.campaign import AqueousSettings, ComputeSettings
+    from redoxfront.candidates.structures import parse_candidate
+    from redoxfront.compute.aqueous import aqueous_columns, proton_coupling
+
+    settings = ComputeSettings(solvent="water", role="catholyte", n_electrons=2, reference="SHE")
+    cand = parse_candidate({"id": "hq", "smiles": "[O-]c1ccc([O-])cc1.[K+].[K+]", "pka_reduced": "9.85;11.4"}, 2, settings)
+    coupling = proton_coupling(cand, 0.10, 0.0, None, settings, AqueousSettings(ph=7.0), None, None)
+    assert coupling.pka_source == "given" and coupling.ladder is None
+    row = aqueous_columns(coupling, [], "she", 7.0)
+    k = nernst_slope_v_per_ph()
+    assert row[C.PROTONS_AT_PH] == 2
+    assert row[C.potential_uncalibrated("she")] == pytest.approx(0.10 + k / 2 * (2.85 + 4.4))
+    assert aqueous_columns(coupling, [], "she", 13.0)[C.potential_uncalibrated("she")] == pytest.approx(0.10)
