@@ -129,3 +129,11 @@ def test_invented_bipolar_example_runs_end_to_end_with_symmetric_cells(tmp_path)
     assert "shorter" in summary["rules"]["half_life_h"]
     groups = [line["group"] for line in json.loads((res / "calibration.json").read_text())["lines"]]
     assert groups == ["all", "bipolar reduction", "bipolar oxidation"]
+    # the report shows both potentials, the symmetric cell, the limiting form and the rules
+    html = (res / "report.html").read_text()
+    for text in ("Reduction potential", "Oxidation potential", "Life limited by", "symmetric cell",
+                 "(symmetric cell: the same molecule in both tanks)", "Bipolar candidates",
+                 "bipolar reduction", "bipolar oxidation"):
+        assert text in html, text
+    limiting = {"reduced": "radical anion", "oxidised": "radical cation"}[bip.loc["imine-h", C.LIFE_LIMITED_BY]]
+    assert f"limited by the {limiting}" in html

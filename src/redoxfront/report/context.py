@@ -65,6 +65,17 @@ def shown_potential(table: pd.DataFrame, ref: str) -> pd.DataFrame:
     def col(name: str) -> pd.Series:
         return pd.to_numeric(t[name], errors="coerce") if name in t else pd.Series(float("nan"), index=t.index)
 
+    for process in C.PROCESSES:  # bipolar candidates: both couples, the same rule
+        used = C.process_potential(process, "used", ref)
+        if used in t:
+            t[f"{process}_shown"] = col(used)
+            t[f"{process}_shown_low"] = col(C.process_potential(process, "used", ref, "low"))
+            t[f"{process}_shown_high"] = col(C.process_potential(process, "used", ref, "high"))
+        elif C.process_potential(process, "uncalibrated", ref) in t:
+            cal_p = col(C.process_potential(process, "calibrated", ref))
+            t[f"{process}_shown"] = cal_p.where(cal_p.notna(), col(C.process_potential(process, "uncalibrated", ref)))
+            t[f"{process}_shown_low"] = col(C.process_potential(process, "calibrated", ref, "low"))
+            t[f"{process}_shown_high"] = col(C.process_potential(process, "calibrated", ref, "high"))
     if C.potential_used(ref) in t:
         t["potential_shown"] = col(C.potential_used(ref))
         t["potential_shown_low"] = col(C.potential_used_low(ref))

@@ -96,7 +96,9 @@ def card_facts(rec: Mapping[str, Any], r: str, objectives: list[str] | tuple[str
     half = F.significant(rec.get(C.HALF_LIFE), 2)
     words = F.duration_words(rec.get(C.HALF_LIFE))
     partner = rec.get(C.PARTNER_ID)
+    symmetric = str(rec.get(C.ROLE, "")) == "bipolar"
     partner_words = ("" if F._missing(partner) else
+                     " (symmetric cell: the same molecule in both tanks)" if symmetric else
                      " vs fixed counter" if str(partner) == "fixed" else f" with {partner}")
     cap = " · ".join(x for x in (
         F.fixed(rec.get(C.CAPACITY_VOL), 1) + " Ah/L" if F.as_float(rec.get(C.CAPACITY_VOL)) is not None else "",
@@ -105,12 +107,14 @@ def card_facts(rec: Mapping[str, Any], r: str, objectives: list[str] | tuple[str
     facts = [
         ("Potential", F.fixed(rec.get("potential_shown"), 2) + f" V vs {r}" if F.as_float(rec.get("potential_shown")) is not None else "",
          " · ".join(x for x in (_interval(rec, "potential_shown_low", "potential_shown_high", "fixed", 2), _basis_words(rec)) if x)),
+        *_bipolar_potentials(rec, r),
         ("Cell voltage", F.fixed(rec.get(C.CELL_VOLTAGE), 2) + " V" + partner_words if F.as_float(rec.get(C.CELL_VOLTAGE)) is not None else "",
          _interval(rec, C.CELL_VOLTAGE_LOW, C.CELL_VOLTAGE_HIGH, "fixed", 2)),
         ("Capacity", cap, ""),
         ("Energy density", F.fixed(rec.get(C.ENERGY_DENSITY), 1) + " Wh/L" if F.as_float(rec.get(C.ENERGY_DENSITY)) is not None else "",
          _interval(rec, C.ENERGY_DENSITY_LOW, C.ENERGY_DENSITY_HIGH, "fixed", 1)),
-        ("Half-life", f"{half} h" + (f" ({words})" if words else "") if half else "not predicted (no rate model yet)",
+        ("Half-life", f"{half} h" + (f" ({words})" if words else "") + _limited_words(rec) if half
+         else "not predicted (no rate model yet)",
          _interval(rec, C.HALF_LIFE_LOW, C.HALF_LIFE_HIGH, "sig", 2) if half else ""),
         ("P(on front)", F.fixed(rec.get(C.P_FRONT), 2), ""),
     ]
@@ -118,6 +122,32 @@ def card_facts(rec: Mapping[str, Any], r: str, objectives: list[str] | tuple[str
         facts.append(("Molar mass", F.fixed(rec.get(C.MOLAR_MASS), 1) + " g/mol" if F.as_float(rec.get(C.MOLAR_MASS)) is not None else "",
                       "with counterions"))
     return [{"label": a, "value": b, "interval": c} for a, b, c in facts if b]
+
+
+FORM_WORDS = {"reduced": "radical anion", "oxidised": "radical cation"}
+
+
+def _bipolar_potentials(rec: Mapping[str, Any], r: str) -> list[tuple[str, str, str]]:
+    """A bipolar candidate's two potentials for its card (none for other candidates)."""
+    out = []
+    for process, label in (("reduction", "Reduction"), ("oxidation", "Oxidation")):
+        value = rec.get(f"{process}_shown")
+        if F.as_float(value) is None:
+            continue
+        basis = str(rec.get(C.process_column(process, C.POTENTIAL_BASIS)) or "")
+        out.append((label, F.fixed(value, 2) + f" V vs {r}", " · ".join(x for x in (
+            _interval(rec, f"{process}_shown_low", f"{process}_shown_high", "fixed", 2), basis) if x)))
+    return out
+
+
+def _limited_words(rec: Mapping[str, Any]) -> str:
+    """', limited by the radical anion (radical cation: 3100 h)' for a bipolar candidate."""
+    form = str(rec.get(C.LIFE_LIMITED_BY) or "")
+    if form not in FORM_WORDS:
+        return ""
+    other = "oxidised" if form == "reduced" else "reduced"
+    life = F.significant(rec.get(C.form_column(other, C.HALF_LIFE)), 2)
+    return f", limited by the {FORM_WORDS[form]}" + (f" ({FORM_WORDS[other]}: {life} h)" if life else "")
 
 
 def building_blocks(rec: Mapping[str, Any]) -> list[dict[str, str]]:
@@ -342,6 +372,14 @@ def assumptions(campaign: Campaign, cell: Any, desc: pd.DataFrame | None,
         ("Method", method_line(campaign, desc)),
         ("Conformers", conformer_words(campaign, desc)),
     ]
+    sym = summary.get("symmetric_cells") or {}
+    if sym.get("n_bipolar"):
+        rules = sym.get("rules", {})
+        items.append(("Bipolar candidates", (
+            f"{sym['n_bipolar']} candidate(s) fill both tanks of a symmetric cell (no partner). Cell voltage: "
+            f"{rules.get('cell_voltage_v', '')}. Energy density: {rules.get('energy_density_wh_per_l', '')}. "
+            f"Half-life: {rules.get('half_life_h', '')}; reduction and oxidation potentials are calibrated "
+            "against measured potentials of their own kind")))
     if summary.get("objectives"):
         items.append(("Ranked on", ", ".join(OBJECTIVE_WORDS.get(o, o) for o in summary["objectives"])))
     return [{"label": a, "value": b} for a, b in items]
@@ -414,7 +452,7 @@ def summary_paragraphs(desc: pd.DataFrame | None, table: Mapping[str, Any], card
         out.append(second)
     cautions = []
     rows = table.get("rows", [])
-    n_extra = sum(any(b["text"] == "rate model extrapolates" for b in r["badges"]) for r in rows)
+    n_extra = sum(any(b["text"].startswith("rate model extrapolates") for b in r["badges"]) for r in rows)
     n_raw = sum(any(b["text"].startswith("uncalibrated") for b in r["badges"]) for r in rows)
     n_out = sum(any(b["text"] == "outside calibration range" for b in r["badges"]) for r in rows)
     if n_extra:
