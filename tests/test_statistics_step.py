@@ -195,3 +195,15 @@ def test_a_model_with_one_residual_degree_of_freedom_warns_in_every_output(tmp_p
     rep5 = fit_campaign(load_campaign(folder5))
     assert "WARNING" not in rep5.text()
     assert (pd.read_csv(rep5.predictions_path, keep_default_na=False)[columns.MODEL_WARNING] == "").all()
+
+
+def test_one_measured_potential_the_fit_goes_on_uncalibrated(tmp_path):
+    # a line needs three points (common practice, no source): with one, the model uses the
+    # uncalibrated potential and says so instead of stopping
+    folder = make_campaign(tmp_path, model_toml="[model]\nn_permutations = 100\n")
+    pot = pd.read_csv(folder / "inputs" / "potentials.csv").head(1)
+    pot.to_csv(folder / "inputs" / "potentials.csv", index=False)
+    rep = fit_campaign(load_campaign(folder))
+    assert rep.terms[0] == columns.potential_uncalibrated("fc") and rep.n_train == 16
+    assert any("only 1 usable measured potential(s)" in n for n in rep.notes)
+    assert any("the model uses the uncalibrated potential" in n for n in rep.notes)

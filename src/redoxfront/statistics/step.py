@@ -164,8 +164,14 @@ def _resolve_potential(campaign: Any, table: pd.DataFrame) -> tuple[pd.DataFrame
             campaign.compute.solvent,
             (campaign.compute.user_reference_name, campaign.compute.user_reference_v_vs_fc))
         settings = sfm(CalibrationSettings, campaign.section("calibration"), "calibration")
-        table, _ = calibrate_table(table, measured, ref, settings)
-        return table, cal, notes + ["potentials calibrated on the fly (run the calibrate command to store them)"]
+        calibrated, report = calibrate_table(table, measured, ref, settings)
+        if pd.to_numeric(calibrated[cal], errors="coerce").notna().any():
+            return calibrated, cal, notes + ["potentials calibrated on the fly (run the calibrate command to store them)"]
+        # too few measured potentials for a line: go on with the uncalibrated potential
+        notes += list(report.notes) + ["no calibration possible: the model uses the uncalibrated potential"]
+        if raw not in table.columns:
+            raise DataError(f"descriptor table has no '{raw}' column; run the compute step first")
+        return table, raw, notes
     if raw not in table.columns:
         raise DataError(f"descriptor table has no '{raw}' column; run the compute step first")
     return table, raw, ["no measured potentials: the model uses the uncalibrated potential"]
