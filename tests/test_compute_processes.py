@@ -96,6 +96,23 @@ def test_a_second_compute_on_the_same_campaign_stops_with_a_clear_message(tmp_pa
         pass
 
 
+def _stored(folder: Path) -> int:
+    """Entries in the campaign's store (read-only look; 0 before the store exists)."""
+    import sqlite3
+
+    path = folder / "cache.sqlite"
+    if not path.exists():
+        return 0
+    try:
+        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=5)
+        try:
+            return int(con.execute("SELECT COUNT(*) FROM states").fetchone()[0])
+        finally:
+            con.close()
+    except sqlite3.Error:
+        return 0
+
+
 TIMING_COLUMNS = ["wall_time_s", "engine_time_s", "from_store"]
 """How long this run took and whether it found the work stored: the only columns allowed to
 differ between a resumed run and an uninterrupted one."""
@@ -112,9 +129,13 @@ def test_a_run_killed_ten_times_resumes_to_the_uninterrupted_numbers(tmp_path: P
     rng = random.Random(13)
     kills = 0
     while kills < 10:
+        before = _stored(killed)
         proc = subprocess.Popen([EXE, "compute", str(killed), "--quiet"], stdout=subprocess.DEVNULL,
                                 stderr=subprocess.DEVNULL, start_new_session=True)
-        time.sleep(rng.uniform(0.8, 2.5))  # a random moment: start-up, embedding, optimising, writing
+        deadline = time.time() + 120
+        while proc.poll() is None and _stored(killed) <= before and time.time() < deadline:
+            time.sleep(0.02)  # this run is computing once it has stored something new
+        time.sleep(rng.uniform(0.0, 0.6))  # then a random moment: embedding, optimising, writing
         if proc.poll() is not None:
             break  # finished before this kill: the work is done
         os.killpg(proc.pid, signal.SIGKILL)  # the main process and its workers, as in a crash
