@@ -108,7 +108,7 @@ def test_first_screen_report_has_picks_and_no_missing_half_life_claims(first_scr
     assert "uncalibrated potential" in html
     assert "&lt;img src=x onerror=alert(1)&gt;" in html and HOSTILE_ID not in html
     assert "ranked on cell voltage, molar mass (lower is better)" in html
-    assert "no predicted rate" not in html  # said once in the summary, not on every row
+    assert "no half-life" not in html  # no rate model: said once in the summary, not on every row
 
 
 @pytest.mark.parametrize("smiles, atoms", [("COc1ccc(OC)cc1", 10), ("not a smiles", 0)])

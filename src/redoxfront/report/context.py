@@ -118,7 +118,7 @@ def _rows(table: pd.DataFrame, columns: tuple[F.Column, ...], hide_notes: tuple[
     return out
 
 
-NO_MODEL_NOTES: tuple[str, ...] = ("no predicted rate",)
+NO_MODEL_NOTES: tuple[str, ...] = ("no predicted rate", "no measured, fitted or predicted rate")
 """Row notes that only repeat that there is no rate model (the summary says it once)."""
 
 

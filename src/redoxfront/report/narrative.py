@@ -76,8 +76,8 @@ def _with_interval(rec: Mapping[str, Any], key: str, low: str, high: str, kind: 
     if not value:
         return ""
     lo, hi = F.number(rec.get(low), kind, digits), F.number(rec.get(high), kind, digits)
-    text = f"{value} ({lo}–{hi})" if lo and hi and not lo == hi == value else value
-    return f"{text} {unit}" if unit else text
+    unit_text = f"{value} {unit}" if unit else value
+    return f"{unit_text} ({lo}–{hi})" if lo and hi and not lo == hi == value else unit_text
 
 
 def _basis_words(rec: Mapping[str, Any]) -> str:
@@ -163,9 +163,11 @@ def pick_sentence(rec: Mapping[str, Any], objectives: list[str]) -> str:
     parts = []
     for name in objectives:
         if name == "cell_voltage":
-            parts.append(_with_interval(rec, C.CELL_VOLTAGE, C.CELL_VOLTAGE_LOW, C.CELL_VOLTAGE_HIGH, "fixed", 2, "V"))
+            v = _with_interval(rec, C.CELL_VOLTAGE, C.CELL_VOLTAGE_LOW, C.CELL_VOLTAGE_HIGH, "fixed", 2, "V")
+            parts.append(f"cell voltage {v}" if v else "")
         elif name == "energy_density":
-            parts.append(_with_interval(rec, C.ENERGY_DENSITY, C.ENERGY_DENSITY_LOW, C.ENERGY_DENSITY_HIGH, "fixed", 1, "Wh/L"))
+            v = _with_interval(rec, C.ENERGY_DENSITY, C.ENERGY_DENSITY_LOW, C.ENERGY_DENSITY_HIGH, "fixed", 1, "Wh/L")
+            parts.append(f"energy density {v}" if v else "")
         elif name == "half_life":
             v = _with_interval(rec, C.HALF_LIFE, C.HALF_LIFE_LOW, C.HALF_LIFE_HIGH, "sig", 2, "h")
             parts.append(f"half-life {v}" if v else "")
@@ -176,7 +178,7 @@ def pick_sentence(rec: Mapping[str, Any], objectives: list[str]) -> str:
     flags = [b["text"] for b in F.badges(rec) if b["style"] in ("warn", "bad")]
     if flags:
         text += f"; {', '.join(flags)}"
-    return f"{rec[C.ID]} ({text})"
+    return f"{rec[C.ID]}: {text}"
 
 
 def model_facts(model: Mapping[str, Any], ref: str, label: str) -> dict[str, Any]:
@@ -434,7 +436,8 @@ def summary_paragraphs(desc: pd.DataFrame | None, table: Mapping[str, Any], card
     model = models.get("model")
     if model:
         stats = {s["label"]: s["value"] for s in model["stats"]}
-        first += (f" The decomposition-rate model was trained on {stats.get('training rates', '?')} measured rates "
+        first += (f" The decomposition-rate model was trained on {stats.get('training rates', '?')} rates "
+                  "(measured, or fitted from cycling files) "
                   f"(R² {stats.get('R²', '?')}, Q² leave-one-out {stats.get('Q² (leave-one-out)', '?')}"
                   + (f", y-randomisation p {stats['y-randomisation p (Q²)']}" if "y-randomisation p (Q²)" in stats else "")
                   + ").")
@@ -448,7 +451,7 @@ def summary_paragraphs(desc: pd.DataFrame | None, table: Mapping[str, Any], card
         if cards:
             second += (" Suggested next to make: " if card_basis == "picks" else
                        " Every ranked candidate is measured; the first front, most probable first: ")
-            second += "; ".join(f"{k + 1}. {c['sentence']}" for k, c in enumerate(cards[:3])) + ". 95 % intervals in brackets."
+            second += " ".join(f"({k + 1}) {c['sentence']}." for k, c in enumerate(cards[:3])) + " Brackets hold 95 % intervals."
         out.append(second)
     cautions = []
     rows = table.get("rows", [])
@@ -460,7 +463,8 @@ def summary_paragraphs(desc: pd.DataFrame | None, table: Mapping[str, Any], card
     if n_out:
         cautions.append(f"{n_out} candidate(s) have computed potentials outside the calibration range")
     if n_raw:
-        cautions.append(f"{n_raw} candidate(s) use uncalibrated potentials (about ±0.3 V)")
+        cautions.append(f"{n_raw} candidate(s) use uncalibrated potentials (errors of several tenths of a volt: "
+                        "see their wide intervals)")
     if cautions:
         out.append("Do not over-read: " + "; ".join(cautions) + ". These are marked in every figure and table.")
     return out
