@@ -43,7 +43,7 @@ def test_badges_carry_text_and_unknown_flag_values_still_show():
     texts = [b["text"] for b in F.badges(row)]
     # common practice, no source: colour is never the only signal, every badge has words
     assert texts == ["uncalibrated potential", "rate model extrapolates", "knee of the front"]
-    assert F.badges({C.DOMAIN: "borderline"}) == [{"text": "domain: borderline", "style": "info"}]
+    assert F.badges({C.DOMAIN: "borderline"}) == [{"text": "domain: borderline", "style": "info", "detail": ""}]
 
 
 def test_demo_report_sections_in_order_and_self_contained(demo_results):
@@ -134,8 +134,8 @@ def test_model_domain_badge_left_out_when_the_rate_was_measured():
 def test_window_flag_shows_its_own_words_as_a_warning():
     # free-text flags from the ranking keep their words (common practice, no source)
     row = {C.WINDOW_FLAG: "may be outside the window: above the oxidation limit 2.50 V (acetonitrile)"}
-    assert F.badges(row) == [{"text": "electrolyte window: may be outside the window: above the oxidation limit "
-                                      "2.50 V (acetonitrile)", "style": "warn"}]
+    assert F.badges(row) == [{"text": "electrolyte window: may be outside the window", "style": "warn",
+                              "detail": row[C.WINDOW_FLAG]}]
 
 
 def test_demo_assumptions_state_the_window_checked(demo_results):

@@ -148,7 +148,7 @@ FLAGS: tuple[Flag, ...] = (
         "uncalibrated": None,  # said by the potential basis
         "calibrated (outside calibration range)": ("outside calibration range", "warn"),
     }, unless=_OWN_POTENTIAL),
-    Flag(C.POTENTIAL_FLAG, {"": None}, other=("", "warn")),
+    Flag(C.POTENTIAL_FLAG, {"": None}, other=("potential: ", "warn")),
     Flag(C.WINDOW_FLAG, {"": None}, other=("electrolyte window: ", "warn")),
     Flag(C.RATE_BASIS, {
         "measured": ("rate measured", "good"),
@@ -159,6 +159,7 @@ FLAGS: tuple[Flag, ...] = (
     Flag(C.DOMAIN, {
         "inside": None,
         "extrapolating": ("rate model extrapolates", "bad"),
+        "not predicted": None,  # bipolar rows: the domain of each charged form below
         "": None,
     }, unless=_OWN_RATE + ((C.ROLE, frozenset({"bipolar"})),)),  # a bipolar row: per form, below
     Flag(C.form_column("reduced", C.DOMAIN), {
@@ -218,11 +219,13 @@ def badges(row: Mapping[str, Any], flags: tuple[Flag, ...] = FLAGS) -> list[dict
             text, style = found
         elif value == "" or value is False:
             continue
-        elif flag.other is not None:
-            text, style = f"{flag.other[0]}{value}", flag.other[1]
+        elif flag.other is not None:  # free text: its first clause on the badge, all of it on hover
+            text, style = f"{flag.other[0]}{str(value).split(':')[0]}", flag.other[1]
+            out.append({"text": text, "style": style, "detail": str(value)})
+            continue
         else:
             text, style = (flag.key.replace("_", " ") if value is True else f"{flag.key.replace('_', ' ')}: {value}"), "info"
-        out.append({"text": text, "style": style})
+        out.append({"text": text, "style": style, "detail": ""})
     return out
 
 
