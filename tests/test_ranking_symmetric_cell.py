@@ -106,7 +106,13 @@ def test_bipolar_candidates_are_ranked_beside_ordinary_ones_on_the_same_objectiv
     assert list(ordinary[col.PARTNER_ID]) == ["a1", "c1"]  # bipolar rows are nobody's partner
     assert list(ordinary[col.CELL_VOLTAGE]) == pytest.approx([2.70, 2.70])
     assert set(ordinary[col.CELL_CONFIGURATION]) == {"paired with the best partner"}
-    ranked = rank_table(m, RankingSettings(objectives=("energy_density", "half_life"), n_draws=200)).table
+    result = rank_table(m, RankingSettings(objectives=("energy_density", "half_life"), n_draws=200))
+    ranked = result.table
+    # a bipolar pick carries both couples and both forms into picks.csv
+    assert "bq" in set(result.picks[col.ID])
+    for name in (P("reduction", "used", REF), P("oxidation", "used", REF), "half_life_reduced_h",
+                 "half_life_oxidised_h", "domain_reduced", col.LIFE_LIMITED_BY, col.CELL_CONFIGURATION):
+        assert name in result.picks.columns, name
     assert ranked[col.PARETO_RANK].notna().all()  # all four ranked together
     bq = ranked.set_index(col.ID).loc["bq"]
     # bq: the highest energy density (2.90 V symmetric cell) -> on the first front

@@ -174,6 +174,13 @@ def rank_table(table: pd.DataFrame, settings: RankingSettings, *, progress: bool
         col.RATE_BASIS, col.POTENTIAL_FLAG, col.WINDOW_FLAG, col.DOMAIN, col.EXTRAPOLATING,
         col.CELL_CONFIGURATION, col.LIFE_LIMITED_BY, col.RANKING_NOTE) if c in picks.columns]
     keep += [c for c in picks.columns if c.startswith(col.SUBSTITUENT_PREFIX)]  # a library's building blocks
+    bipolar = [c for process, form in col.CHARGED_FORMS.items()  # a bipolar pick's two couples and two forms
+               for c in picks.columns if c.startswith(f"{process}_potential_used")
+               or c.startswith(col.form_column(form, col.HALF_LIFE)[: -len("_h")])
+               or c in (col.form_column(form, col.HALF_LIFE_LOW), col.form_column(form, col.HALF_LIFE_HIGH),
+                        col.form_column(form, col.DOMAIN))]
+    if picks[col.ROLE].astype(str).eq("bipolar").any() if col.ROLE in picks.columns else False:
+        keep += [c for c in bipolar if c not in keep]
     return RankingResult(out, picks[keep], float(hv_fraction), knee_id, names)
 
 
