@@ -135,5 +135,6 @@ def test_invented_bipolar_example_runs_end_to_end_with_symmetric_cells(tmp_path)
                  "(symmetric cell: the same molecule in both tanks)", "Bipolar candidates",
                  "bipolar reduction", "bipolar oxidation"):
         assert text in html, text
+    assert "per row: 5 catholyte, 5 anolyte, 4 bipolar" in html  # the roles the rows name, not the default
     limiting = {"reduced": "radical anion", "oxidised": "radical cation"}[bip.loc["imine-h", C.LIFE_LIMITED_BY]]
     assert f"limited by the {limiting}" in html

@@ -356,8 +356,12 @@ def assumptions(campaign: Campaign, cell: Any, desc: pd.DataFrame | None,
             f"vs SHE (Bard & Faulkner); Fc+/Fc = +{units.FC_VS_SCE_MECN_V:.2f} V vs SCE in acetonitrile "
             f"(Connelly & Geiger 1996); absolute SHE {units.ABSOLUTE_SHE_V[s.absolute_she]:.2f} V ({s.absolute_she})")
     order = cell.rate_order or "as the rate model (1: ln 2 / k; 2: 1 / (k c0))"
+    role = f"{s.role}, {s.n_electrons} electron(s) per molecule"
+    if desc is not None and C.ROLE in desc and desc[C.ROLE].nunique() > 1:  # rows name their own role
+        counts = desc[C.ROLE].astype(str).value_counts()
+        role = "per row: " + ", ".join(f"{n} {r}" for r, n in counts.items()) + f" (campaign default: {role})"
     items = [
-        ("Role", f"{s.role}, {s.n_electrons} electron(s) per molecule"),
+        ("Role", role),
         ("Counter electrode", counter),
         ("Concentration", f"{cell.concentration_mol_per_l:g} mol/L of the candidate; {cap}"),
         ("Tank basis", tank),
