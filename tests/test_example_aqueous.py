@@ -36,6 +36,8 @@ def test_invented_aqueous_example_runs_end_to_end(tmp_path: Path) -> None:
     lines: list[str] = []
     run_campaign(folder, progress=False, echo=lines.append)
     res = folder / "results"
+    assert any(ln.strip() == "aqueous at pH 14: potentials at that pH; pKa given 1, estimated 3 (+-3, flagged), none 0"
+               for ln in lines)
     desc = pd.read_csv(res / "descriptors.csv").set_index(C.ID)
     assert (desc[C.STATUS] == "ok").all()
     # 5,10-dihydrophenazine is the reduced form the couple was computed with
@@ -68,3 +70,6 @@ def test_invented_aqueous_example_runs_end_to_end(tmp_path: Path) -> None:
     assert "Reduced forms computed" in html and "(estimated, +-3.0)" in html  # forms and pKa provenance per pick
     assert "hydrogen gas" in html and "safety data sheets" in html
     assert "Invented demo" in html
+    # an aqueous uncalibrated potential says its band understates the error
+    unc = ranking[ranking[C.POTENTIAL_BASIS] == "uncalibrated"]
+    assert all("uncalibrated potential in water" in n for n in unc[C.RANKING_NOTE])

@@ -60,3 +60,14 @@ def test_ferricyanide_partner_and_electrons_inside_the_window_at_ph_14() -> None
 def test_unknown_published_partner_is_refused() -> None:
     with pytest.raises(SettingsError, match="unknown partner couple 'bromine'"):
         CellSettings(counter="published", counter_couple="bromine")
+
+
+def test_uncalibrated_potentials_in_water_carry_a_note() -> None:
+    # from memory: 1,4-benzoquinone computed -0.53 V against +0.28 V measured at pH 7 vs SHE
+    # (tests/test_compute_aqueous.py; Clark 1960): the organic-solvent band understates this
+    table = _table().assign(**{C.CAMPAIGN_PH: 14.0})
+    settings = CellSettings(counter="published", ph=14.0)
+    out = cell_metrics(table, settings, "she", solvent="water")
+    assert out[C.RANKING_NOTE].str.contains("uncalibrated potential in water").all()
+    dry = cell_metrics(_table(), settings, "she", solvent="water")
+    assert not dry[C.RANKING_NOTE].str.contains("uncalibrated potential in water").any()

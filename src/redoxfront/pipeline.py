@@ -92,6 +92,11 @@ def run_campaign(
                     f"{report.wall_time_s:.0f} s")
     for p in report.problems:
         echo(f"           rejected: {p}")
+    if columns.CAMPAIGN_PH in report.table.columns:
+        src = report.table[columns.PKA_SOURCE].fillna("none").astype(str).value_counts()
+        note("", f"aqueous at pH {report.table[columns.CAMPAIGN_PH].dropna().iloc[0]:g}: potentials at that pH; "
+                 f"pKa given {int(src.get('given', 0))}, estimated {int(src.get('estimated', 0))} (+-3, flagged), "
+                 f"none {int(src.get('none', 0))}")
 
     if camp.inputs.cycling:
         rates = fade_campaign(camp, progress=progress)

@@ -214,6 +214,12 @@ def _potentials(table: pd.DataFrame, settings: CellSettings, ref: str, notes: li
         notes[r].append("calibrated potential without interval: the uncalibrated band of its couple type used")
     lo = np.where(use_cal & ~has_pi, raw_lo - raw + e, lo)
     hi = np.where(use_cal & ~has_pi, raw_hi - raw + e, hi)
+    if col.CAMPAIGN_PH in table.columns:  # aqueous: the bands were measured in organic solvents
+        for r in np.flatnonzero(basis == "uncalibrated"):
+            notes[r].append(
+                "uncalibrated potential in water: proton and (di)anion solvation are poorly captured by the "
+                "implicit solvent (errors near 1 V for two-electron anolytes), so its band understates the "
+                "error; calibrate against measured aqueous potentials")
     for r in np.flatnonzero(~np.isfinite(e)):
         notes[r].append(
             f"no potential (columns {col.potential_measured(ref)} / {col.potential_calibrated(ref)} / "
