@@ -126,3 +126,21 @@ def test_hostile_id_is_text_and_never_runs(browser, campaign, request):
     page.find_elements("css selector", "#candidate-table thead th button")[1].click()
     assert _no_dialog(page)
     assert page.execute_script("return document.querySelectorAll('img[src=\"x\"]').length;") == 0
+
+
+def test_printed_table_fits_an_a4_landscape_page(browser, demo_results):
+    # A4 landscape, 10 mm margins: 277 mm = 1047 CSS px at 96 px per inch (CSS 2.1 reference pixel)
+    page = _open(browser, demo_results)
+    page.execute_cdp_cmd("Emulation.setEmulatedMedia", {"media": "print"})
+    try:
+        page.set_window_size(1047, HEIGHT)
+        width = page.execute_script("return document.querySelector('#candidate-table').scrollWidth;")
+        shown = page.execute_script(
+            "return Array.from(document.querySelectorAll('#candidate-table thead th'))"
+            ".filter(th => th.offsetParent !== null).map(th => th.textContent.trim());")
+        body = page.execute_script("return document.body.clientWidth;")
+        assert width <= body <= 1047  # the table inside the printed page
+        assert not any(h.startswith("SMILES") or h.startswith("Notes") for h in shown)  # long text stays in the CSV
+    finally:
+        page.execute_cdp_cmd("Emulation.setEmulatedMedia", {"media": ""})
+        page.set_window_size(WIDTH, HEIGHT)

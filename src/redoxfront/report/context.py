@@ -140,8 +140,8 @@ def table_section(table: pd.DataFrame | None, label: str, res: Path,
                                   note="substituent at this site of the scaffold") for s in subs)
         cols = lead + rest + sub_cols + smiles
         out["n_lead"] = len(lead)
-        out["headers"] = [{"text": c.header, "unit": c.unit, "numeric": c.kind != "text", "note": c.note}
-                          for c in cols]
+        out["headers"] = [{"text": c.header, "unit": c.unit, "numeric": c.kind != "text", "note": c.note,
+                           "screen_only": c.screen_only} for c in cols]
         out["truncated"] = max(0, len(shown) - MAX_TABLE_ROWS)
         out["rows"] = _rows(shown.head(MAX_TABLE_ROWS), cols, hide_notes)
         failed = table[~ok]

@@ -115,6 +115,8 @@ class Column:
     low: str | None = None
     high: str | None = None
     note: str = ""
+    screen_only: bool = False
+    """Left out of the printed page (long text that is in the CSV and on the pick cards)."""
 
 
 @dataclass(frozen=True)
@@ -254,7 +256,7 @@ def table_columns(r: str) -> tuple[Column, ...]:
         Column(C.PARETO_RANK, "Front no.", kind="int"),
         Column(C.MOLAR_MASS, "Molar mass", "g/mol", digits=1),
         Column(C.CONCENTRATION, "Concentration", "mol/L", digits=2),
-        Column(C.SMILES, "SMILES", kind="text"),
+        Column(C.SMILES, "SMILES", kind="text", screen_only=True),
     )
 
 LEAD_COLUMNS: tuple[str, ...] = (C.PICK_ORDER, C.ID)
@@ -271,7 +273,7 @@ def cell(row: Mapping[str, Any], column: Column) -> dict[str, Any]:
     value = row.get(column.key)
     if column.kind == "text":
         text = "" if _missing(value) else str(value)
-        return {"text": text, "interval": "", "sort": text.lower(), "numeric": False}
+        return {"text": text, "interval": "", "sort": text.lower(), "numeric": False, "screen_only": column.screen_only}
     text = number(value, column.kind, column.digits)
     interval = ""
     if column.low and column.high:
@@ -280,4 +282,5 @@ def cell(row: Mapping[str, Any], column: Column) -> dict[str, Any]:
             lo_text, hi_text = number(lo, column.kind, column.digits), number(hi, column.kind, column.digits)
             interval = "" if lo_text == hi_text == text else f"{lo_text} to {hi_text}"
     v = as_float(value)
-    return {"text": text, "interval": interval, "sort": "" if v is None else repr(v), "numeric": True}
+    return {"text": text, "interval": interval, "sort": "" if v is None else repr(v), "numeric": True,
+            "screen_only": column.screen_only}
