@@ -364,3 +364,19 @@ def test_a_bipolar_row_moving_two_electrons_is_refused_with_the_fix():
     with pytest.raises(InputError, match="bipolar candidate moves one electron each way.*n_electrons must be 1"):
         parse_candidate({"id": "x", "smiles": "c1ccccc1", "role": "bipolar", "n_electrons": "2"}, 2,
                         ComputeSettings(conformers=FAST))
+
+
+def test_status_counts_a_bipolar_row_interrupted_in_its_first_state_as_partly_done(tmp_path):
+    # a bipolar row computes its discharged state first (the middle of its chain): a finished
+    # conformer of that state left by a killed run makes the row partly done, not pending
+    folder = _campaign(tmp_path / "camp", ["COc1ccc(OC)cc1"])
+    (folder / "inputs" / "candidates.csv").write_text("id,smiles,role\nm0,COc1ccc(OC)cc1,bipolar\n")
+    camp = load_campaign(folder)
+    cand = parse_candidate({"id": "m0", "smiles": "COc1ccc(OC)cc1", "role": "bipolar"}, 2, camp.compute)
+    whole = compute_candidate(cand, camp.compute, str(tmp_path / "whole.sqlite"))
+    conf = whole.states.states["discharged"].conformers[0]
+    with Store(camp.store_path) as s:
+        s.put(cand.main_smiles, "charge=+0;unpaired=0:conformer:0", camp.compute.result_hash(), conf.to_json())
+    assert compute_status(camp).partial == ["m0"]
+    compute_campaign(camp, progress=False)
+    assert compute_status(camp).done == ["m0"]

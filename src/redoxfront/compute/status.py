@@ -15,6 +15,7 @@ from redoxfront.campaign import Campaign
 from redoxfront.candidates.structures import candidate_states, read_candidates
 from redoxfront.compute.step import checkpoint_name, failure_text
 from redoxfront.compute.store import Store
+from redoxfront.engine.records import STATE_DISCHARGED
 from redoxfront.errors import InputError
 
 
@@ -48,8 +49,10 @@ def compute_status(campaign: Campaign, *, candidates_path: str | Path | None = N
             failure = next((failure_text(s, {"failed": reason})
                             for s, (_, reason) in zip(plan, found) if reason), None)
             stored = sum(f[0] for f in found)
-            # a first state interrupted between conformers also counts as partly done
-            stored += store.state_status(c.main_smiles, checkpoint_name(plan[0].key, 0), key_hash)[0]
+            # a first state interrupted between conformers also counts as partly done (the first
+            # state computed is the discharged one, in the middle of a bipolar row's chain)
+            first = next(s for s in plan if s.name == STATE_DISCHARGED)
+            stored += store.state_status(c.main_smiles, checkpoint_name(first.key, 0), key_hash)[0]
             if failure:
                 status.failed[c.id] = failure
             elif stored == len(plan):
