@@ -72,6 +72,9 @@ def test_run_every_step_and_report(tmp_path):
     assert "<script>alert(1)</script>" not in html  # every string is escaped
     assert "x&lt;script&gt;alert(1)&lt;/script&gt;" in html
     assert "test data made by a known rule" in html
+    # issue 11: the report says which rates trained the model and which window was checked
+    assert "Rates that trained the model: measured 6, fitted from cycling files 0" in html
+    assert "-2.70 to +2.50 V vs Fc+/Fc (typical window of acetonitrile" in html
     assert "potentials vs Fc+/Fc;" in html  # the reference as a person writes it, not its key
     assert '<svg role="img" aria-label="Trade-off front"' in html  # figures inline: one self-contained file
     assert "safety data sheets" in html

@@ -152,6 +152,7 @@ def test_fitted_and_measured_rates_both_train_the_model_measured_wins(tmp_path):
     assert "outside the 95 % interval" not in str(pred.loc["dmb-00", columns.RATE_NOTE])
     assert any("disagree" in n and "dmb-01" in n for n in rep.notes)
     assert "rates: measured 12, fitted 2" in rep.text()
+    assert rep.rate_overrides == (2, 1)  # dmb-00 and dmb-01 have both; dmb-01 disagrees
     import json
     model = json.loads(rep.model_path.read_text())
     assert model["context"]["rate_sources"]["counts"] == {"measured": 12, "fitted": 2}

@@ -121,7 +121,10 @@ def run_campaign(
         stats = fit.statistics
         note("fit", f"model on {', '.join(fit.terms)}: R2 {stats.get('r2') or float('nan'):.3f}, "
                     f"Q2(LOO) {stats.get('q2_loo') or float('nan'):.3f} (results/model.json, results/predictions.csv)")
-        note("", "rates that trained the model: " + ", ".join(f"{k} {v}" for k, v in fit.rate_sources.items()))
+        over, disagree = fit.rate_overrides
+        note("", "rates that trained the model: " + ", ".join(f"{k} {v}" for k, v in fit.rate_sources.items())
+             + (f" ({over} fitted rate(s) set aside: the measured value wins; {disagree} disagree beyond the "
+                "fit's 95 % interval, see results/model.json notes)" if over else ""))
         for w in (n for n in fit.notes if n.startswith("WARNING:")):
             note("", w)
     else:

@@ -28,7 +28,8 @@ OBJECTIVE_WORDS: dict[str, str] = {
 
 LIMITATIONS: tuple[str, ...] = (
     "Potentials come from a fast semiempirical method (GFN2-xTB) with an implicit solvent. "
-    "Without calibration against measured potentials they are typically off by about 0.3 V; "
+    "Without calibration against measured potentials, 95 % of their errors on published couples "
+    "span -0.44 to +0.37 V for reductions and -0.61 to +0.77 V for oxidations (docs/validation.md); "
     "after a linear calibration within one compound class, by about 0.05-0.1 V (Davis & Fry, "
     "J. Phys. Chem. A 2010, 114, 12299). Outside the range of the measured compounds the "
     "calibration is an extrapolation.",
@@ -220,8 +221,11 @@ def model_facts(model: Mapping[str, Any], ref: str, label: str) -> dict[str, Any
             "vif": F.fixed(row.get("vif"), 1),
             "ddg": F.fixed(row.get("ddg_act_kcal_per_mol_per_unit"), 2),
         })
+    counts = (ctx.get("rate_sources") or {}).get("counts") or {}
     return {
         "equation": eq,
+        "rate_sources": (f"measured {counts.get('measured', 0)}, fitted from cycling files {counts.get('fitted', 0)}"
+                         if counts else "sources not recorded"),
         "stats": [{"label": a, "value": F.number(b, k, d)} for a, b, k, d in stats if F.as_float(b) is not None],
         "coefficients": coef_rows,
         "notes": [str(n) for n in ctx.get("notes", []) or [] if not str(n).startswith("WARNING:")],
@@ -336,6 +340,15 @@ def method_line(campaign: Campaign, desc: pd.DataFrame | None) -> str:
             f"Software: {_software()}; settings hash {s.result_hash()} (the key of the stored states).")
 
 
+def window_words(summary: Mapping[str, Any], r: str) -> str:
+    """The electrolyte window the ranking checked, as a reader reads it."""
+    w = summary.get("electrochemical_window") if summary else None
+    if not w:
+        return "no window known for this solvent: set [cell] window_low_v / window_high_v to check candidates"
+    return (f"{w['low_v']:+.2f} to {w['high_v']:+.2f} V vs {r} ({w['source']}); "
+            f"{summary.get('n_outside_window', 0)} candidate(s) flagged in window_flag")
+
+
 def assumptions(campaign: Campaign, cell: Any, desc: pd.DataFrame | None,
                 summary: Mapping[str, Any], r: str) -> list[dict[str, str]]:
     """The cell and method assumptions behind every number, as label/value pairs (``r``: the
@@ -372,8 +385,8 @@ def assumptions(campaign: Campaign, cell: Any, desc: pd.DataFrame | None,
         ("Uncalibrated potentials", (f"given a 95 % interval of ±{cell.uncalibrated_uncertainty_v:g} V ([cell] "
                                      "uncalibrated_uncertainty_v)") if cell.uncalibrated_uncertainty_v is not None else
          "given the 95 % error band of their couple type (oxidation or reduction), measured on published "
-         "potentials (see the ranking documentation); typically about 0.3 V (Davis & Fry, J. Phys. Chem. A "
-         "2010, 114, 12299)"),
+         "potentials (reductions -0.44 to +0.37 V, oxidations -0.61 to +0.77 V around the raw value; "
+         "two-electron carriers wider and flagged; see the ranking documentation)"),
         ("Half-life", f"rate order {order}, at the operating concentration"),
         ("Method", method_line(campaign, desc)),
         ("Conformers", conformer_words(campaign, desc)),
@@ -436,12 +449,13 @@ def summary_paragraphs(desc: pd.DataFrame | None, table: Mapping[str, Any], card
         first += (f" Potentials calibrated against {cal['n_measured']} measured potentials "
                   f"(leave-one-out mean error {cal['lines'][0]['loo_mae']} V).")
     else:
-        first += " Potentials are uncalibrated (no measured potentials): expect errors of about 0.3 V."
+        first += (" Potentials are uncalibrated (no measured potentials): on published couples their errors "
+                  "reach -0.6 to +0.8 V (oxidations) and -0.4 to +0.4 V (reductions).")
     model = models.get("model")
     if model:
         stats = {s["label"]: s["value"] for s in model["stats"]}
-        first += (f" The decomposition-rate model was trained on {stats.get('training rates', '?')} rates "
-                  "(measured, or fitted from cycling files) "
+        first += (f" The decomposition-rate model was trained on {stats.get('training rates', '?')} rates"
+                  f" ({model.get('rate_sources', 'sources not recorded')}) "
                   f"(R² {stats.get('R²', '?')}, Q² leave-one-out {stats.get('Q² (leave-one-out)', '?')}"
                   + (f", y-randomisation p {stats['y-randomisation p (Q²)']}" if "y-randomisation p (Q²)" in stats else "")
                   + ").")

@@ -36,6 +36,10 @@ class RateSources:
     table: pd.DataFrame
     files: tuple[str, ...]
     notes: tuple[str, ...]
+    n_fitted_overridden: int = 0
+    """Fitted rates set aside because the candidate also has a measured one."""
+    n_disagreeing: int = 0
+    """Of those, how many measured values lie outside the fit's 95 % interval."""
 
     def counts(self) -> dict[str, int]:
         """How many candidates' rates come from each source."""
@@ -160,4 +164,4 @@ def collect_rates(measured_path: Path | None, fitted_path: Path | None, target: 
     if disagree:
         notes.append("measured and fitted rates disagree (measured outside the fit's 95 % interval): "
                      + "; ".join(disagree[:20]))
-    return RateSources(table, tuple(files), tuple(notes))
+    return RateSources(table, tuple(files), tuple(notes), n_both, len(disagree))

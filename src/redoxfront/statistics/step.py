@@ -91,6 +91,8 @@ class FitReport:
     notes: tuple[str, ...]
     rate_sources: dict[str, int] = dc_field(default_factory=dict)
     """Candidates whose rate trained or tested the model, per source ('measured', 'fitted')."""
+    rate_overrides: tuple[int, int] = (0, 0)
+    """Fitted rates set aside for a measured one, and how many of those disagree with it."""
 
     def text(self) -> str:
         """A short plain-text summary for the terminal."""
@@ -328,6 +330,8 @@ def fit_campaign(campaign: Any) -> FitReport:
         "potential_column": pot_col,
         "split": split,
         "rate_sources": {"files": list(sources.files), "counts": trained_counts,
+                         "fitted_overridden_by_measured": sources.n_fitted_overridden,
+                         "disagreeing": sources.n_disagreeing,
                          "rule": "a candidate with both a measured and a fitted rate uses the measured value; "
                                  "a measured value outside the fit's 95 % interval is reported"},
         "warnings": warnings,
@@ -367,7 +371,7 @@ def fit_campaign(campaign: Any) -> FitReport:
         statistics=model.statistics(), external=external, search=search_summary,
         n_train=model.n_, n_test=int(len(test)), n_extrapolating=n_extra,
         model_path=model_path, predictions_path=pred_path, figures=tuple(figs), notes=tuple(notes),
-        rate_sources=trained_counts,
+        rate_sources=trained_counts, rate_overrides=(sources.n_fitted_overridden, sources.n_disagreeing),
     )
 
 
