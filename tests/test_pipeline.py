@@ -74,7 +74,7 @@ def test_run_every_step_and_report(tmp_path):
     assert "test data made by a known rule" in html
     # issue 11: the report says which rates trained the model and which window was checked
     assert "Rates that trained the model: measured 6, fitted from cycling files 0" in html
-    assert "-2.70 to +2.50 V vs Fc+/Fc (typical window of acetonitrile" in html
+    assert "V vs Fc+/Fc (typical window of acetonitrile with 0.1 M TBAPF6" in html
     assert "potentials vs Fc+/Fc;" in html  # the reference as a person writes it, not its key
     assert '<svg role="img" aria-label="Trade-off front"' in html  # figures inline: one self-contained file
     assert "safety data sheets" in html

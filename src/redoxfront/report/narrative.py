@@ -340,15 +340,6 @@ def method_line(campaign: Campaign, desc: pd.DataFrame | None) -> str:
             f"Software: {_software()}; settings hash {s.result_hash()} (the key of the stored states).")
 
 
-def window_words(summary: Mapping[str, Any], r: str) -> str:
-    """The electrolyte window the ranking checked, as a reader reads it."""
-    w = summary.get("electrochemical_window") if summary else None
-    if not w:
-        return "no window known for this solvent: set [cell] window_low_v / window_high_v to check candidates"
-    return (f"{w['low_v']:+.2f} to {w['high_v']:+.2f} V vs {r} ({w['source']}); "
-            f"{summary.get('n_outside_window', 0)} candidate(s) flagged in window_flag")
-
-
 def assumptions(campaign: Campaign, cell: Any, desc: pd.DataFrame | None,
                 summary: Mapping[str, Any], r: str) -> list[dict[str, str]]:
     """The cell and method assumptions behind every number, as label/value pairs (``r``: the
