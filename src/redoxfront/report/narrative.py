@@ -446,8 +446,8 @@ def summary_paragraphs(desc: pd.DataFrame | None, table: Mapping[str, Any], card
     if model:
         stats = {s["label"]: s["value"] for s in model["stats"]}
         first += (f" The decomposition-rate model was trained on {stats.get('training rates', '?')} rates"
-                  f" ({model.get('rate_sources', 'sources not recorded')}) "
-                  f"(R² {stats.get('R²', '?')}, Q² leave-one-out {stats.get('Q² (leave-one-out)', '?')}"
+                  f" ({model.get('rate_sources', 'sources not recorded')}; "
+                  f"R² {stats.get('R²', '?')}, Q² leave-one-out {stats.get('Q² (leave-one-out)', '?')}"
                   + (f", y-randomisation p {stats['y-randomisation p (Q²)']}" if "y-randomisation p (Q²)" in stats else "")
                   + ").")
     else:
