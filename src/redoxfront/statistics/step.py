@@ -304,6 +304,7 @@ def fit_campaign(campaign: Any) -> FitReport:
         if c != "set":
             pred[c] = pred[columns.ID].map(data[c])
     pred[columns.RATE_SOURCE] = pred[columns.RATE_SOURCE].fillna("")
+    pred = pred.copy()  # one block per added column so far; consolidate before adding more
     pred[columns.STANDARDISED_RESIDUAL] = pred[columns.ID].map(
         pd.Series(model.standardised_resid_, index=model.ids_)
     )
