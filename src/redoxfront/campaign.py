@@ -431,7 +431,7 @@ def _inside(path: Path, folder: Path) -> bool:
 
 OWNED_SECTIONS: tuple[str, ...] = (
     "calibration", "model", "fade", "cell", "ranking", "sites", "descriptors", "report", "library",
-    "aqueous",
+    "aqueous", "funnel",
 )
 
 

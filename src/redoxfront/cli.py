@@ -79,17 +79,33 @@ def library_command(campaign: Path) -> None:
               help="Run on a Dask scheduler at ADDRESS, or 'local' for a Dask cluster on this machine.")
 @click.option("--potentials-only", is_flag=True,
               help="Skip the steric and electronic descriptors (a fast first pass over a large library).")
+@click.option("--funnel", "funnel", is_flag=True,
+              help="Fast tier for every candidate, full tier for those the [funnel] rule selects "
+                   "(results/fast_tier.csv); what `run` does above [funnel] threshold candidates.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 @friendly_errors
 def compute_command(campaign: Path, candidates: Path | None, out: Path | None, workers: int | None,
-                    cluster: str | None, potentials_only: bool, quiet: bool) -> None:
+                    cluster: str | None, potentials_only: bool, funnel: bool, quiet: bool) -> None:
     """Optimise both redox states of every candidate and write uncalibrated potentials."""
     from redoxfront.campaign import load_campaign
     from redoxfront.compute.step import compute_campaign
 
     camp = load_campaign(campaign)
-    report = compute_campaign(camp, candidates_path=candidates, out_path=out, workers=workers,
-                              dask_address=cluster, progress=not quiet, describe=not potentials_only)
+    if funnel:
+        from redoxfront.compute.funnel import funnel_campaign
+        from redoxfront.errors import SettingsError
+
+        if candidates or out:
+            raise SettingsError("--funnel reads [inputs] candidates and writes results/: leave out --candidates "
+                                "and --out")
+        fun = funnel_campaign(camp, workers=workers, dask_address=cluster, progress=not quiet,
+                              describe=not potentials_only)
+        click.echo(f"fast tier: {fun.fast_ok} of {fun.candidates} candidates; full tier: {fun.sampled} "
+                   f"calibration sample + {fun.selected} selected (results/fast_tier.csv)")
+        report = fun.compute
+    else:
+        report = compute_campaign(camp, candidates_path=candidates, out_path=out, workers=workers,
+                                  dask_address=cluster, progress=not quiet, describe=not potentials_only)
     status = report.table["status"].astype(str) if len(report.table) else None
     ok = int((status == "ok").sum()) if status is not None else 0
     flagged = report.table[status.str.startswith("implausible")] if status is not None else report.table

@@ -1,6 +1,7 @@
 """The whole job on one campaign, step by step: what ``redoxfront run`` does.
 
-library (if the campaign has a [library] section) -> compute -> fade fitting (if cycling files are given) -> calibration -> rate model
+library (if the campaign has a [library] section) -> compute (through the funnel of
+:mod:`redoxfront.compute.funnel` above its size threshold) -> fade fitting (if cycling files are given) -> calibration -> rate model
 (if rates are available) -> cell metrics and ranking -> the HTML report. Each step is the library
 function its own command calls; a step without its inputs is skipped with the reason.
 """
@@ -85,7 +86,17 @@ def run_campaign(
 
         out, combos, distinct, problems = library_for_campaign(camp, progress=progress)
         note("library", f"{combos} combinations, {distinct} distinct molecules, {len(problems)} left out ({out})")
-    report = compute_campaign(camp, workers=workers, dask_address=dask_address, progress=progress)
+    from redoxfront.compute.funnel import funnel_campaign, funnel_settings, use_funnel
+
+    if use_funnel(camp):  # a large library: fast tier for all, full tier for the rule's selection
+        funnel = funnel_campaign(camp, workers=workers, dask_address=dask_address, progress=progress)
+        fs = funnel_settings(camp)
+        note("funnel", f"fast tier: {funnel.fast_ok} of {funnel.candidates} candidates (results/fast_tier.csv); "
+                       f"full tier: {funnel.sampled} calibration sample + {funnel.selected} selected by rule "
+                       f"{fs.rule} (fraction {fs.fraction:g}); more than [funnel] threshold {fs.threshold} candidates")
+        report = funnel.compute
+    else:
+        report = compute_campaign(camp, workers=workers, dask_address=dask_address, progress=progress)
     ok = int((report.table["status"] == "ok").sum()) if len(report.table) else 0
     note("compute", f"{ok} of {len(report.table)} candidates computed, {len(report.problems)} input rows "
                     f"rejected (results/input_problems.csv); {report.new_engine_calls} new engine calls, "

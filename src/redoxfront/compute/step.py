@@ -648,8 +648,12 @@ def compute_campaign(
     dask_address: str | None = None,
     progress: bool = True,
     describe: bool = True,
+    only_ids: set[str] | None = None,
 ) -> ComputeReport:
     """Read the campaign's candidates, compute them, write ``results/descriptors.csv``.
+
+    ``only_ids``: compute only these candidates (the funnel's selection); the table then holds
+    just them (the full tier of a funnel run).
 
     Also writes ``results/geometries.sdf``: the lowest conformer of every redox state.
 
@@ -659,15 +663,18 @@ def compute_campaign(
     :class:`~redoxfront.compute.lock.CampaignBusyError` naming the process holding it.
     """
     with campaign_lock(campaign.folder):
-        return _compute_campaign(campaign, candidates_path, out_path, workers, dask_address, progress, describe)
+        return _compute_campaign(campaign, candidates_path, out_path, workers, dask_address, progress, describe,
+                                 only_ids)
 
 
 def _compute_campaign(campaign: Campaign, candidates_path: str | Path | None, out_path: str | Path | None,
                       workers: int | None, dask_address: str | None, progress: bool,
-                      describe: bool) -> ComputeReport:
+                      describe: bool, only_ids: set[str] | None = None) -> ComputeReport:
     settings = campaign.compute
     path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates, "[inputs] candidates")
     candidates, problems = read_candidates(path, settings)
+    if only_ids is not None:
+        candidates = [c for c in candidates if c.id in only_ids]
     sections = {"sites": campaign.section("sites"), "descriptors": campaign.section("descriptors")}
     outcomes, wall = compute_candidates(candidates, settings, campaign.store_path, workers=workers,
                                         dask_address=dask_address, progress=progress, sections=sections,

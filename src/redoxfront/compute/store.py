@@ -138,6 +138,35 @@ class Store:
         stored = self.get(smiles, state, settings_hash)
         return payload if stored is None else stored
 
+    def put_many(self, rows: list[tuple[str, str, str, dict[str, Any]]]) -> int:
+        """Store many (smiles, entry, settings hash, payload) rows in one transaction (first
+        writer wins, as in :meth:`put`); returns the rows written."""
+        if not rows:
+            return 0
+        now = time.time()
+        self._con.execute("BEGIN IMMEDIATE")
+        try:
+            n = sum(self._con.execute("INSERT OR IGNORE INTO states VALUES (?, ?, ?, ?, ?)",
+                                      (s, e, k, json.dumps(p), now)).rowcount for s, e, k, p in rows)
+            self._con.execute("COMMIT")
+        except BaseException:
+            self._con.execute("ROLLBACK")
+            raise
+        return n
+
+    def get_prefixed(self, smiles: list[str], prefix: str, settings_hash: str) -> dict[str, dict[str, dict[str, Any]]]:
+        """Every entry whose name starts with ``prefix`` for these molecules: smiles -> name -> payload."""
+        out: dict[str, dict[str, dict[str, Any]]] = {}
+        wanted = list(dict.fromkeys(smiles))
+        for i in range(0, len(wanted), 500):  # SQLite's bound-parameter limit
+            part = wanted[i:i + 500]
+            marks = ",".join("?" * len(part))
+            for s, name, text in self._con.execute(
+                    f"SELECT smiles, state, payload FROM states WHERE settings_hash=? AND smiles IN ({marks}) "
+                    "AND substr(state, 1, ?)=?", (settings_hash, *part, len(prefix), prefix)):
+                out.setdefault(s, {})[name] = json.loads(text)
+        return out
+
     def state_status(self, smiles: str, state: str, settings_hash: str) -> tuple[bool, str | None]:
         """(stored?, failure reason or None) without reading the whole payload."""
         try:

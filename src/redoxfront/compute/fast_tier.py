@@ -1,0 +1,230 @@
+"""The fast tier: a first pass that every candidate of a large library gets.
+
+Per candidate: one force-field geometry (RDKit ETKDGv3, one conformer, MMFF94 with UFF as
+fallback; Riniker & Landrum, J. Chem. Inf. Model. 2015, 55, 2562; Halgren, J. Comput. Chem.
+1996, 17, 490) and two GFN2-xTB + ALPB single points at that geometry (tblite): the discharged
+state and the first state of charging. From them:
+
+* the vertical potential, uncalibrated, V vs the campaign's reference: the adiabatic formula of
+  :mod:`redoxfront.engine.potentials` with both energies at the discharged geometry (no
+  relaxation of the charged state, no conformer search);
+* the frontier orbital energies of the discharged state, eV (HOMO for a catholyte, LUMO for an
+  anolyte: the orbital proxy).
+
+Which of the two orders candidates like the full tier was measured (docs/funnel.md); the
+vertical potential is the one the funnel uses. Bipolar rows are not in the fast tier: the
+funnel passes them to the full tier as they are.
+
+Results are stored in the campaign's store under the same key rule as the full tier
+(canonical SMILES, the state's charge and unpaired electrons) with the entry name prefixed
+``fast-tier:`` and a settings hash of its own (:func:`fast_tier_hash`), so the two tiers
+never read each other's entries. Workers return records; only the driver writes the store,
+one transaction per chunk.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import time
+from dataclasses import dataclass
+from typing import Any, Iterable, Iterator, Sequence
+
+from redoxfront.campaign import ComputeSettings
+from redoxfront.errors import EngineError, InputError
+
+TIER_FAST = "fast"
+TIER_FULL = "full"
+FAST_ENTRY_PREFIX = "fast-tier:"
+"""Store entry of a fast-tier single point: ``fast-tier:<state key>``, all at the one
+force-field geometry of the discharged molecule."""
+
+# column names of the fast-tier table: every one says its tier
+FAST_STATUS = "fast_tier_status"
+FAST_HOMO = "fast_tier_homo_discharged_ev"
+FAST_LUMO = "fast_tier_lumo_discharged_ev"
+FAST_SECONDS = "fast_tier_wall_time_s"
+
+
+def fast_vertical_column(ref: str) -> str:
+    """Fast tier: vertical potential at the force-field geometry, uncalibrated, V vs ``ref``."""
+    return f"fast_tier_vertical_potential_uncalibrated_v_vs_{ref}"
+
+
+@dataclass(frozen=True)
+class FastJob:
+    """What a worker needs of one candidate (small, cheap to send)."""
+
+    id: str
+    smiles: str
+    """Canonical SMILES of the charge carrier (the candidate's main fragment)."""
+    role: str
+    n_electrons: int
+
+
+@dataclass(frozen=True)
+class FastResult:
+    """One candidate's fast-tier result: its row and the store payloads (by entry name)."""
+
+    id: str
+    smiles: str
+    row: dict[str, Any]
+    payloads: dict[str, dict[str, Any]]
+    engine_seconds: float
+    wall_seconds: float
+
+
+def fast_tier_hash(settings: ComputeSettings) -> str:
+    """Settings hash of fast-tier entries: solvent, method, engine, seed, RDKit version."""
+    from rdkit import __version__ as rdkit_version
+
+    keep = {"tier": TIER_FAST, "solvent": settings.solvent, "method": settings.method,
+            "engine": settings.engine, "seed": settings.seed, "rdkit": rdkit_version, "schema": 1}
+    return hashlib.sha256(json.dumps(keep, sort_keys=True).encode()).hexdigest()[:16]
+
+
+def force_field_geometry(mol_h: Any, seed: int) -> Any:
+    """One conformer: ETKDGv3 embedding then MMFF94 (UFF if MMFF lacks types), Angstrom.
+
+    Returns the positions as an (n_atoms, 3) array. Raises InputError when RDKit cannot embed.
+    """
+    from rdkit.Chem import AllChem
+
+    params = AllChem.ETKDGv3()
+    params.randomSeed = seed
+    params.numThreads = 1
+    if AllChem.EmbedMolecule(mol_h, params) < 0:
+        params.useRandomCoords = True
+        if AllChem.EmbedMolecule(mol_h, params) < 0:
+            raise InputError("RDKit could not embed 3D coordinates", field="smiles")
+    if AllChem.MMFFHasAllMoleculeParams(mol_h):
+        AllChem.MMFFOptimizeMolecule(mol_h, maxIters=200)
+    elif AllChem.UFFHasAllMoleculeParams(mol_h):
+        AllChem.UFFOptimizeMolecule(mol_h, maxIters=200)
+    return mol_h.GetConformer().GetPositions()
+
+
+def _point_payload(energy_eh: float, homo_eh: float, lumo_eh: float, charge: int, uhf: int) -> dict[str, Any]:
+    return {"energy_eh": energy_eh, "homo_eh": homo_eh, "lumo_eh": lumo_eh, "charge": charge, "uhf": uhf,
+            "geometry": "force field, discharged state"}
+
+
+def fast_candidate(job: FastJob, settings: ComputeSettings,
+                   stored: dict[str, dict[str, Any]] | None = None) -> FastResult:
+    """The fast tier of one candidate: force-field geometry and two single points.
+
+    ``stored``: payloads already in the store for this molecule (by entry name); a candidate
+    whose two points are stored costs no engine call. Failures become the row's status.
+    """
+    import numpy as np
+    from rdkit import Chem
+
+    from redoxfront.candidates.structures import redox_states
+    from redoxfront.engine.potentials import potential_v, reduction_free_energy_ev
+    from redoxfront.engine.xtb import make_engine
+    from redoxfront.units import HARTREE_EV
+
+    t0 = time.perf_counter()
+    ref = settings.reference
+    row: dict[str, Any] = {"id": job.id, "canonical_smiles": job.smiles, "role": job.role}
+    payloads: dict[str, dict[str, Any]] = {}
+    engine = make_engine(settings.engine, settings.method, settings.solvent)
+    if job.role == "bipolar":
+        row[FAST_STATUS] = "not in the fast tier: bipolar rows go to the full tier"
+        return FastResult(job.id, job.smiles, row, payloads, 0.0, time.perf_counter() - t0)
+    stored = stored or {}
+    try:
+        mol_h = Chem.AddHs(Chem.MolFromSmiles(job.smiles))
+        numbers = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
+        first, second = redox_states(mol_h, job.role, job.n_electrons)[:2]
+        points = {}
+        xyz = None
+        for st in (first, second):
+            name = FAST_ENTRY_PREFIX + st.key
+            found = stored.get(name)
+            if found is None:
+                if xyz is None:
+                    xyz = force_field_geometry(mol_h, settings.seed)
+                res = engine.compute(numbers, xyz, st.charge, st.uhf,
+                                     spin_polarized=settings.spin_polarized and st.uhf > 0)
+                found = _point_payload(res.energy_eh, res.homo_eh, res.lumo_eh, st.charge, st.uhf)
+                payloads[name] = found
+            points[st.name] = found
+    except (EngineError, InputError) as exc:
+        row[FAST_STATUS] = f"failed: {getattr(exc, 'reason', exc)}"
+        return FastResult(job.id, job.smiles, row, payloads, engine.stats.seconds, time.perf_counter() - t0)
+    e0, e1 = points[first.name]["energy_eh"], points[second.name]["energy_eh"]
+    dg = reduction_free_energy_ev(e0, e1, job.role)
+    row[FAST_STATUS] = "ok"
+    row[fast_vertical_column(ref)] = potential_v(
+        dg, shift_ev=settings.ipea_shift_ev, absolute_she=settings.absolute_she, reference=ref,
+        user_reference_v_vs_fc=settings.user_reference_v_vs_fc)
+    row[FAST_HOMO] = points[first.name]["homo_eh"] * HARTREE_EV
+    row[FAST_LUMO] = points[first.name]["lumo_eh"] * HARTREE_EV
+    row[FAST_SECONDS] = round(time.perf_counter() - t0, 4)
+    return FastResult(job.id, job.smiles, row, payloads, engine.stats.seconds, time.perf_counter() - t0)
+
+
+def _fast_chunk(chunk: Sequence[tuple[FastJob, dict | None]], settings: ComputeSettings) -> list[FastResult]:
+    """A worker's task: one chunk of candidates (fewer tasks, less inter-process traffic)."""
+    return [fast_candidate(job, settings, stored) for job, stored in chunk]
+
+
+def chunked(items: Iterable[Any], size: int) -> Iterator[list[Any]]:
+    """Consecutive lists of at most ``size`` items."""
+    chunk: list[Any] = []
+    for item in items:
+        chunk.append(item)
+        if len(chunk) == size:
+            yield chunk
+            chunk = []
+    if chunk:
+        yield chunk
+
+
+def run_fast_tier(
+    jobs: Sequence[FastJob],
+    settings: ComputeSettings,
+    store_path: str | None,
+    *,
+    workers: int = 1,
+    chunk_size: int = 64,
+    dask_address: str | None = None,
+    progress: bool = False,
+) -> Iterator[FastResult]:
+    """Fast tier of every job, yielded chunk by chunk as they finish (completion order).
+
+    Stored points are read in the driver and sent with the job; new points are written to
+    the store by the driver, one transaction per chunk. Memory: the driver holds the jobs and
+    one chunk of results at a time.
+    """
+    from redoxfront.compute.executors import map_tasks
+    from redoxfront.compute.store import Store
+
+    key = fast_tier_hash(settings)
+    store = Store(store_path) if store_path else None
+    try:
+        chunks = []
+        for chunk in chunked(jobs, chunk_size):
+            known = store.get_prefixed([j.smiles for j in chunk], FAST_ENTRY_PREFIX, key) if store else {}
+            chunks.append([(j, known.get(j.smiles)) for j in chunk])
+        if store is not None:
+            store.close()
+            store = None  # no open SQLite handle while the pool forks
+        for results in map_tasks(_fast_chunk, chunks, args=(settings,), workers=workers,
+                                 dask_address=dask_address, progress=progress, desc="fast tier"):
+            if store_path:
+                if store is None:
+                    store = Store(store_path)
+                store.put_many([(r.smiles, name, key, p) for r in results for name, p in r.payloads.items()])
+            yield from results
+    finally:
+        if store is not None:
+            store.close()
+
+
+__all__ = [
+    "FAST_ENTRY_PREFIX", "FAST_HOMO", "FAST_LUMO", "FAST_SECONDS", "FAST_STATUS", "FastJob", "FastResult",
+    "TIER_FAST", "TIER_FULL", "chunked", "fast_candidate", "fast_tier_hash", "fast_vertical_column",
+    "force_field_geometry", "run_fast_tier",
+]
