@@ -133,3 +133,17 @@ def test_links_and_file_names_in_the_docs_exist() -> None:
             if not (top / "tests" / name).exists():
                 missing.append(f"{page.name}: {name}")
     assert missing == []
+
+
+def test_store_and_compute_modules_load_without_pandas_or_scipy_optimize() -> None:
+    # measured with python -X importtime (issue 14): pandas about 2 s and scipy.optimize about
+    # 1.9 s of every command's start; the compute step, `status` and the fast tier need neither
+    import subprocess
+    import sys
+
+    code = ("import sys, redoxfront.cli, redoxfront.compute.step, redoxfront.compute.status, "
+            "redoxfront.compute.fast_tier, redoxfront.candidates; "
+            "print(sorted(m for m in ('pandas', 'scipy.optimize', 'scipy.spatial', 'rdkit.Chem.Descriptors') "
+            "if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    assert out.strip() == "[]"  # common practice, no source: nothing loaded that is not used

@@ -5,8 +5,20 @@ Takes the candidates and the campaign's [compute] settings; gives stored states
 ``results/geometries.sdf``, and the status of a campaign's work.
 """
 
-from redoxfront.compute.status import compute_status
-from redoxfront.compute.step import compute_campaign, compute_candidates
-from redoxfront.compute.store import Store
+from typing import Any
+
+_EXPORTS = {"compute_status": "redoxfront.compute.status", "compute_campaign": "redoxfront.compute.step",
+            "compute_candidates": "redoxfront.compute.step", "Store": "redoxfront.compute.store"}
+
+
+def __getattr__(name: str) -> Any:
+    """Exports loaded on first use, so importing one module of the step (the store, the fast
+    tier) does not load all of them (PEP 562)."""
+    if name in _EXPORTS:
+        import importlib
+
+        return getattr(importlib.import_module(_EXPORTS[name]), name)
+    raise AttributeError(f"module 'redoxfront.compute' has no attribute {name!r}")
+
 
 __all__ = ["Store", "compute_campaign", "compute_candidates", "compute_status"]

@@ -14,8 +14,9 @@ from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Any, Callable
 
+from typing import TYPE_CHECKING
+
 import numpy as np
-import pandas as pd
 from rdkit import Chem
 
 from redoxfront import columns as C
@@ -49,6 +50,9 @@ from redoxfront.engine.xtb import Engine, EngineResult, make_engine
 from redoxfront.errors import DataError, EngineError, InputError
 from redoxfront.outputs import write_csv
 from redoxfront.units import HARTREE_EV, PLAUSIBLE_POTENTIAL_LIMIT_V_VS_FC, convert_potential
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 CONFORMER_ENTRY = "conformer_ensemble"
 """Store entry (in the place of a state name) for the RDKit conformer search of a candidate."""
@@ -489,7 +493,7 @@ def _bipolar_row(row: dict[str, Any], outcome: CandidateOutcome, settings: Compu
 class ComputeReport:
     """Result of a compute run: the table, the rejected rows and the cost of this run."""
 
-    table: pd.DataFrame
+    table: "pd.DataFrame"
     problems: list[InputError]
     outcomes: list[CandidateOutcome]
     new_engine_calls: int
@@ -679,6 +683,8 @@ def _compute_campaign(campaign: Campaign, candidates_path: str | Path | None, ou
     outcomes, wall = compute_candidates(candidates, settings, campaign.store_path, workers=workers,
                                         dask_address=dask_address, progress=progress, sections=sections,
                                         describe=describe, aqueous=aqueous_settings(campaign))
+    import pandas as pd  # here: the commands that only read the store need not load it
+
     table = pd.DataFrame([o.row for o in outcomes])
     out = Path(out_path) if out_path else campaign.results_dir / "descriptors.csv"
     out.parent.mkdir(parents=True, exist_ok=True)

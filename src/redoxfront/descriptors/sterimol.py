@@ -32,7 +32,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from rdkit import Chem
-from scipy.optimize import minimize_scalar
 
 from redoxfront.errors import InputError
 
@@ -194,6 +193,8 @@ def sterimol(
     widths = _width(angles, perp, rs, e1, e2)
     k = int(np.argmin(widths))
     step = 2.0 * np.pi / n_directions
+    from scipy.optimize import minimize_scalar  # here, not at import: 2 s every command would pay
+
     best = minimize_scalar(
         lambda a: float(_width(a, perp, rs, e1, e2)[0]),
         bounds=(angles[k] - step, angles[k] + step),

@@ -12,7 +12,6 @@ Shrake & Rupley, J. Mol. Biol. 1973, 79, 351; probe 1.4 Angstrom (water) by cust
 from __future__ import annotations
 
 import numpy as np
-from scipy.spatial import cKDTree
 
 
 def sphere_points(n_points: int) -> np.ndarray:
@@ -37,6 +36,8 @@ def atom_sasa(
     n = len(x)
     unit = sphere_points(n_points)
     # ordered pairs (i, j) of atoms whose enlarged spheres overlap, grouped by i
+    from scipy.spatial import cKDTree  # loaded when a surface is computed, not at import
+
     pairs = cKDTree(x).query_pairs(2.0 * big.max(), output_type="ndarray")
     i = np.concatenate([pairs[:, 0], pairs[:, 1]])
     j = np.concatenate([pairs[:, 1], pairs[:, 0]])
