@@ -128,6 +128,21 @@ def test_funnel_computes_the_sample_and_the_selection_and_labels_both_tiers(tmp_
     best = fast.loc[fast[estimate_column("fc")].idxmax(), "id"]
     assert best in set(table["id"])  # common practice, no source: the best estimate always goes on
     assert rep.lines["catholyte"]["fitted"] and rep.lines["catholyte"]["n"] == int(chosen.sum())
+    # the default proxy: -HOMO of the catholyte (Koopmans, Physica 1934, 1, 104: IP ~ -HOMO),
+    # one single point per molecule, so no vertical potential
+    assert fast["fast_tier_orbital_proxy_ev"].to_numpy() == pytest.approx(-fast["fast_tier_homo_discharged_ev"].to_numpy())
+    assert fast[fast_vertical_column("fc")].isna().all()
+    with Store(folder / "cache.sqlite") as s:
+        assert s.count(fast_tier_hash(camp.compute)) == 8
+
+
+def test_funnel_on_the_vertical_potential(tmp_path):
+    folder = _campaign(tmp_path, SERIES[:5], "proxy = 'vertical'\nfraction = 0.2\ncalibration_sample = 3\n")
+    rep = funnel_campaign(load_campaign(folder), progress=False, describe=False)
+    fast = pd.read_csv(folder / "results" / "fast_tier.csv")
+    assert fast[fast_vertical_column("fc")].notna().all()
+    # common practice, no source: top 20 % of 5 is one candidate; with the sample of 3 at most 4 run
+    assert 3 <= rep.full_computed <= 4
 
 
 def test_funnel_settings_are_validated(tmp_path):

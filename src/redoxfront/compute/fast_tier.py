@@ -8,11 +8,12 @@ state and the first state of charging. From them:
 * the vertical potential, uncalibrated, V vs the campaign's reference: the adiabatic formula of
   :mod:`redoxfront.engine.potentials` with both energies at the discharged geometry (no
   relaxation of the charged state, no conformer search);
-* the frontier orbital energies of the discharged state, eV (HOMO for a catholyte, LUMO for an
-  anolyte: the orbital proxy).
+* the frontier orbital energies of the discharged state, eV, and the orbital proxy: -HOMO for a
+  catholyte, -LUMO for an anolyte (both rise with the potential).
 
-Which of the two orders candidates like the full tier was measured (docs/funnel.md); the
-vertical potential is the one the funnel uses. Bipolar rows are not in the fast tier: the
+Which of the two orders candidates like the full tier better was measured (docs/funnel.md): the
+orbital proxy did, so the funnel uses it by default and then computes only the discharged single
+point (``points="discharged"``), half the engine time. Bipolar rows are not in the fast tier: the
 funnel passes them to the full tier as they are.
 
 Results are stored in the campaign's store under the same key rule as the full tier
@@ -44,6 +45,11 @@ FAST_STATUS = "fast_tier_status"
 FAST_HOMO = "fast_tier_homo_discharged_ev"
 FAST_LUMO = "fast_tier_lumo_discharged_ev"
 FAST_SECONDS = "fast_tier_wall_time_s"
+FAST_ORBITAL_PROXY = "fast_tier_orbital_proxy_ev"
+"""-HOMO (catholyte) or -LUMO (anolyte) of the discharged state at the force-field geometry, eV."""
+POINTS = ("both", "discharged")
+"""Single points of the fast tier: both states (vertical potential and orbitals) or the
+discharged state only (orbitals, the orbital proxy)."""
 
 
 def fast_vertical_column(ref: str) -> str:
@@ -110,8 +116,11 @@ def _point_payload(energy_eh: float, homo_eh: float, lumo_eh: float, charge: int
 
 
 def fast_candidate(job: FastJob, settings: ComputeSettings,
-                   stored: dict[str, dict[str, Any]] | None = None) -> FastResult:
-    """The fast tier of one candidate: force-field geometry and two single points.
+                   stored: dict[str, dict[str, Any]] | None = None, points: str = "both") -> FastResult:
+    """The fast tier of one candidate: force-field geometry and one or two single points.
+
+    ``points``: 'both' (the vertical potential and the orbitals) or 'discharged' (the orbitals
+    only: the vertical potential column is then left empty).
 
     ``stored``: payloads already in the store for this molecule (by entry name); a candidate
     whose two points are stored costs no engine call. Failures become the row's status.
@@ -137,9 +146,10 @@ def fast_candidate(job: FastJob, settings: ComputeSettings,
         mol_h = Chem.AddHs(Chem.MolFromSmiles(job.smiles))
         numbers = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
         first, second = redox_states(mol_h, job.role, job.n_electrons)[:2]
-        points = {}
+        wanted = (first, second) if points == "both" else (first,)
+        found_points = {}
         xyz = None
-        for st in (first, second):
+        for st in wanted:
             name = FAST_ENTRY_PREFIX + st.key
             found = stored.get(name)
             if found is None:
@@ -149,25 +159,29 @@ def fast_candidate(job: FastJob, settings: ComputeSettings,
                                      spin_polarized=settings.spin_polarized and st.uhf > 0)
                 found = _point_payload(res.energy_eh, res.homo_eh, res.lumo_eh, st.charge, st.uhf)
                 payloads[name] = found
-            points[st.name] = found
+            found_points[st.name] = found
     except (EngineError, InputError) as exc:
         row[FAST_STATUS] = f"failed: {getattr(exc, 'reason', exc)}"
         return FastResult(job.id, job.smiles, row, payloads, engine.stats.seconds, time.perf_counter() - t0)
-    e0, e1 = points[first.name]["energy_eh"], points[second.name]["energy_eh"]
-    dg = reduction_free_energy_ev(e0, e1, job.role)
     row[FAST_STATUS] = "ok"
-    row[fast_vertical_column(ref)] = potential_v(
-        dg, shift_ev=settings.ipea_shift_ev, absolute_she=settings.absolute_she, reference=ref,
-        user_reference_v_vs_fc=settings.user_reference_v_vs_fc)
-    row[FAST_HOMO] = points[first.name]["homo_eh"] * HARTREE_EV
-    row[FAST_LUMO] = points[first.name]["lumo_eh"] * HARTREE_EV
+    row[fast_vertical_column(ref)] = float("nan")
+    if second.name in found_points:
+        dg = reduction_free_energy_ev(found_points[first.name]["energy_eh"], found_points[second.name]["energy_eh"],
+                                      job.role)
+        row[fast_vertical_column(ref)] = potential_v(
+            dg, shift_ev=settings.ipea_shift_ev, absolute_she=settings.absolute_she, reference=ref,
+            user_reference_v_vs_fc=settings.user_reference_v_vs_fc)
+    row[FAST_HOMO] = found_points[first.name]["homo_eh"] * HARTREE_EV
+    row[FAST_LUMO] = found_points[first.name]["lumo_eh"] * HARTREE_EV
+    row[FAST_ORBITAL_PROXY] = -(row[FAST_HOMO] if job.role == "catholyte" else row[FAST_LUMO])
     row[FAST_SECONDS] = round(time.perf_counter() - t0, 4)
     return FastResult(job.id, job.smiles, row, payloads, engine.stats.seconds, time.perf_counter() - t0)
 
 
-def _fast_chunk(chunk: Sequence[tuple[FastJob, dict | None]], settings: ComputeSettings) -> list[FastResult]:
+def _fast_chunk(chunk: Sequence[tuple[FastJob, dict | None]], settings: ComputeSettings,
+                points: str = "both") -> list[FastResult]:
     """A worker's task: one chunk of candidates (fewer tasks, less inter-process traffic)."""
-    return [fast_candidate(job, settings, stored) for job, stored in chunk]
+    return [fast_candidate(job, settings, stored, points) for job, stored in chunk]
 
 
 def chunked(items: Iterable[Any], size: int) -> Iterator[list[Any]]:
@@ -191,6 +205,7 @@ def run_fast_tier(
     chunk_size: int = 64,
     dask_address: str | None = None,
     progress: bool = False,
+    points: str = "both",
 ) -> Iterator[FastResult]:
     """Fast tier of every job, yielded chunk by chunk as they finish (completion order).
 
@@ -211,7 +226,7 @@ def run_fast_tier(
         if store is not None:
             store.close()
             store = None  # no open SQLite handle while the pool forks
-        for results in map_tasks(_fast_chunk, chunks, args=(settings,), workers=workers,
+        for results in map_tasks(_fast_chunk, chunks, args=(settings, points), workers=workers,
                                  dask_address=dask_address, progress=progress, desc="fast tier"):
             if store_path:
                 if store is None:
@@ -224,7 +239,7 @@ def run_fast_tier(
 
 
 __all__ = [
-    "FAST_ENTRY_PREFIX", "FAST_HOMO", "FAST_LUMO", "FAST_SECONDS", "FAST_STATUS", "FastJob", "FastResult",
+    "FAST_ENTRY_PREFIX", "FAST_HOMO", "FAST_ORBITAL_PROXY", "POINTS", "FAST_LUMO", "FAST_SECONDS", "FAST_STATUS", "FastJob", "FastResult",
     "TIER_FAST", "TIER_FULL", "chunked", "fast_candidate", "fast_tier_hash", "fast_vertical_column",
     "force_field_geometry", "run_fast_tier",
 ]

@@ -4,7 +4,9 @@ Rule of the funnel (section ``[funnel]``, :class:`FunnelSettings`):
 
 1. every candidate gets the fast tier (:mod:`redoxfront.compute.fast_tier`);
 2. a calibration sample of ``calibration_sample`` candidates per role, evenly spaced in the
-   order of their fast-tier vertical potential, gets the full tier;
+   order of their fast-tier value (``proxy``: the orbital proxy -HOMO / -LUMO by default, which
+   ranked better than the vertical potential in the measurement of docs/funnel.md, or the
+   vertical potential), gets the full tier;
 3. a line full = a + b x fast is fitted on the sample (ordinary least squares) and gives every
    candidate a calibrated estimate of its full-tier potential with a 95 % prediction interval;
 4. the rule selects who else gets the full tier: ``top_fraction`` (default) takes the best
@@ -33,6 +35,7 @@ import numpy as np
 from redoxfront.campaign import Campaign, bounded, choice, section_from_mapping
 
 RULES = ("top_fraction", "interval_reaches_cut")
+PROXIES = ("orbital", "vertical")
 SELECTION_COLUMN = "full_tier_selection"
 """Why a candidate did or did not get the full tier (text)."""
 
@@ -58,6 +61,8 @@ class FunnelSettings:
     fraction : share of each role selected by the rule (0-1].
     calibration_sample : candidates per role computed at the full tier to fit the tier line.
     chunk_size : candidates per fast-tier task (fewer tasks, less traffic; memory per chunk).
+    proxy : the fast-tier value the line and the rule use: 'orbital' (-HOMO of a catholyte,
+        -LUMO of an anolyte, one single point) or 'vertical' (vertical potential, two points).
     """
 
     threshold: int = field(default=2000, metadata=bounded(0, None))
@@ -65,6 +70,7 @@ class FunnelSettings:
     fraction: float = field(default=0.2, metadata=bounded(0.001, 1.0))
     calibration_sample: int = field(default=24, metadata=bounded(3, 10000))
     chunk_size: int = field(default=64, metadata=bounded(1, 100000))
+    proxy: str = field(default="orbital", metadata=choice(*PROXIES))
 
 
 def funnel_settings(campaign: Campaign) -> FunnelSettings:
@@ -175,7 +181,13 @@ def funnel_campaign(campaign: Campaign, *, workers: int | None = None, dask_addr
     import pandas as pd
 
     from redoxfront.candidates.structures import read_candidates
-    from redoxfront.compute.fast_tier import FAST_STATUS, FastJob, fast_vertical_column, run_fast_tier
+    from redoxfront.compute.fast_tier import (
+        FAST_ORBITAL_PROXY,
+        FAST_STATUS,
+        FastJob,
+        fast_vertical_column,
+        run_fast_tier,
+    )
     from redoxfront.compute.lock import campaign_lock
     from redoxfront.compute.step import compute_campaign
     from redoxfront.outputs import write_csv, write_json
@@ -191,12 +203,13 @@ def funnel_campaign(campaign: Campaign, *, workers: int | None = None, dask_addr
     with campaign_lock(campaign.folder):
         rows = [r.row for r in run_fast_tier(jobs, settings, str(campaign.store_path), workers=workers,
                                              chunk_size=fs.chunk_size, dask_address=dask_address,
-                                             progress=progress)]
+                                             progress=progress,
+                                             points="discharged" if fs.proxy == "orbital" else "both")]
     order = {j.id: i for i, j in enumerate(jobs)}
     fast = pd.DataFrame(rows)
     del rows
     fast = fast.iloc[np.argsort(fast["id"].map(order).to_numpy())].reset_index(drop=True)
-    vcol = fast_vertical_column(ref)
+    vcol = FAST_ORBITAL_PROXY if fs.proxy == "orbital" else fast_vertical_column(ref)
     if vcol not in fast:
         fast[vcol] = np.nan
     ok = (fast[FAST_STATUS] == "ok").to_numpy()
@@ -226,7 +239,7 @@ def funnel_campaign(campaign: Campaign, *, workers: int | None = None, dask_addr
     results = campaign.results_dir
     write_csv(fast, results / "fast_tier.csv")
     write_json(results / "fast_tier_summary.json", {
-        "rule": fs.rule, "fraction": fs.fraction, "calibration_sample_per_role": fs.calibration_sample,
+        "rule": fs.rule, "proxy": fs.proxy, "proxy_column": vcol, "fraction": fs.fraction, "calibration_sample_per_role": fs.calibration_sample,
         "candidates": len(fast), "fast_tier_ok": int(ok.sum()), "full_tier_computed": int(go.sum()),
         "tier_lines": lines,
         "note": "estimates are of the full tier's uncalibrated potential, from a line fitted between "
@@ -275,6 +288,6 @@ def use_funnel(campaign: Campaign) -> bool:
     return rows > funnel_settings(campaign).threshold
 
 
-__all__ = ["FunnelReport", "FunnelSettings", "RULES", "SELECTION_COLUMN", "TierLine", "calibration_sample",
+__all__ = ["PROXIES", "FunnelReport", "FunnelSettings", "RULES", "SELECTION_COLUMN", "TierLine", "calibration_sample",
            "estimate_column", "fit_tier_line", "full_column", "full_tier_top_kept", "funnel_campaign",
            "funnel_settings", "select", "use_funnel"]
