@@ -86,10 +86,12 @@ def compare(name: str, cands, settings: ComputeSettings, workers: int) -> list[s
     for role, part in table.groupby("role"):
         rho_v = spearmanr(part["full"], part["vertical"]).statistic
         rho_o = spearmanr(part["full"], part["orbital"]).statistic
-        kept, top = full_tier_top_kept(part["full"].to_numpy(), part["vertical"].to_numpy(), role, funnel.fraction)
-        lines.append(f"{name}, {role}s: n {len(part)}; Spearman rho full vs fast vertical {rho_v:.2f}, "
-                     f"full vs orbital proxy {rho_o:.2f}; funnel at the default rule (top "
-                     f"{funnel.fraction:.0%} by fast tier) keeps {kept} of the full tier's top 10 % ({top})")
+        kept_o, top = full_tier_top_kept(part["full"].to_numpy(), part["orbital"].to_numpy(), role, funnel.fraction)
+        kept_v, _ = full_tier_top_kept(part["full"].to_numpy(), part["vertical"].to_numpy(), role, funnel.fraction)
+        lines.append(f"{name}, {role}s: n {len(part)}; Spearman rho full vs orbital proxy {rho_o:.2f}, "
+                     f"full vs fast vertical {rho_v:.2f}; the default rule (top {funnel.fraction:.0%} by the "
+                     f"fast tier) keeps {kept_o} of the full tier's top 10 % ({top}) by the orbital proxy, "
+                     f"{kept_v} by the vertical potential")
     return lines
 
 
