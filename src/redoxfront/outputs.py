@@ -110,6 +110,7 @@ WRITTEN_BY: dict[str, str] = {
     "fade_cycles.csv": "fade", "fade_report.md": "fade", "model.json": "fit", "predictions.csv": "fit",
     "ranking.csv": "rank", "picks.csv": "rank", "ranking_summary.json": "rank",
     "training_picks.csv": "choose-training", "report.html": "report",
+    "fast_tier.csv": "compute --funnel", "fast_tier_summary.json": "compute --funnel",
 }
 """Which command writes each result file (the remedy named when one is damaged)."""
 
