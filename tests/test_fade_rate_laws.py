@@ -238,21 +238,21 @@ def test_folder_run_on_invented_examples_recovers_their_k(tmp_path: Path) -> Non
     (tmp_path / "in" / "broken.csv").write_text("a,b\n1,2\n", encoding="utf-8")
     rates = fit_fade_folder(tmp_path / "in", FadeSettings(), tmp_path / "out", progress=False)
     assert list(rates.columns) == list(RATE_TABLE_COLUMNS)
-    assert rates[columns.ID].tolist() == ["broken", "dmb-01", "dmb-02", "dmb-03"]
+    assert rates[columns.ID].tolist() == ["broken", "dmb-04", "dmb-11", "dmb-17"]
     assert rates.loc[0, "status"].startswith("error: ") and "column_map" in rates.loc[0, "status"]
-    ok = rates.set_index(columns.ID).loc[["dmb-01", "dmb-02", "dmb-03"]]
+    ok = rates.set_index(columns.ID).loc[["dmb-04", "dmb-11", "dmb-17"]]
     # invented truths written in examples/.../inputs/cycling/README.md
-    truth = {"dmb-01": 1.2e-3, "dmb-02": 1e-2, "dmb-03": 2e-2}
+    truth = {"dmb-04": 1.2e-3, "dmb-11": 1e-2, "dmb-17": 2e-2}
     for did, k in truth.items():
         assert ok.loc[did, "k_fade_per_h_ci95_low"] <= k <= ok.loc[did, "k_fade_per_h_ci95_high"]
-    assert ok.loc["dmb-02", "model"] == "first_order_plateau"
-    assert ok.loc["dmb-01", "k_per_h"] == pytest.approx(2 * ok.loc["dmb-01", "k_fade_per_h"])
-    assert ok.loc["dmb-03", "data_kind"] == "decay"
+    assert ok.loc["dmb-11", "model"] == "first_order_plateau"
+    assert ok.loc["dmb-04", "k_per_h"] == pytest.approx(2 * ok.loc["dmb-04", "k_fade_per_h"])
+    assert ok.loc["dmb-17", "data_kind"] == "decay"
     out = tmp_path / "out"
     back = pd.read_csv(out / "rates.csv")
     assert back[columns.LOG10_K_FIRST].notna().sum() == 3
-    fig = (out / "figures" / "fade_dmb-02.svg").read_text(encoding="utf-8")
-    assert "<svg" in fig and "dmb-02: k = " in fig  # SVG by default, text kept as text
+    fig = (out / "figures" / "fade_dmb-11.svg").read_text(encoding="utf-8")
+    assert "<svg" in fig and "dmb-11: k = " in fig  # SVG by default, text kept as text
     models = pd.read_csv(out / "fade_models.csv")
     assert models.shape[0] == 12 and models["chosen"].sum() == 3
     report = (out / "fade_report.md").read_text(encoding="utf-8")

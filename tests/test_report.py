@@ -79,7 +79,7 @@ def test_demo_model_section_states_y_randomisation_p_and_equation(demo_results):
     assert f"<dt>y-randomisation p (Q²)</dt><dd>{F.significant(p, 2)}</dd>" in html
     b0 = model["coefficients"][0]
     assert f"log10(k / 1/h) = {F.significant(b0, 3)}" in html
-    for fade_id in ("dmb-01", "dmb-02", "dmb-03"):  # every fade fit has its row and figure
+    for fade_id in ("dmb-04", "dmb-11", "dmb-17"):  # every fade fit has its row and figure
         assert f'aria-label="Fade fit of {fade_id}"' in html or f'alt="Fade fit of {fade_id}"' in html
 
 

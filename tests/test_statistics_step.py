@@ -92,6 +92,8 @@ def test_fit_campaign_search_and_kennard_stone_split(tmp_path):
     assert set(rep.terms) == {columns.potential_uncalibrated("fc"), "sterimol_b1_site1"}
     assert rep.search["n_models_tried"] == 4 + 6  # pool of 4 descriptors, 1..2 terms
     assert rep.n_train == 12 and rep.n_test == 4
+    # rows held out for the external test did not train the model and are not counted as if they had
+    assert rep.rate_sources == {"measured": 12, "fitted": 0, "held out as test set": 4}
     assert any("uncalibrated potential" in n for n in rep.notes)
 
 

@@ -225,6 +225,8 @@ def model_facts(model: Mapping[str, Any], ref: str, label: str) -> dict[str, Any
     return {
         "equation": eq,
         "rate_sources": (f"measured {counts.get('measured', 0)}, fitted from cycling files {counts.get('fitted', 0)}"
+                         + (f"; {counts['held out as test set']} more held out as the test set"
+                            if counts.get("held out as test set") else "")
                          if counts else "sources not recorded"),
         "stats": [{"label": a, "value": F.number(b, k, d)} for a, b, k, d in stats if F.as_float(b) is not None],
         "coefficients": coef_rows,

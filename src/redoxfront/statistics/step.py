@@ -218,7 +218,6 @@ def fit_campaign(campaign: Any) -> FitReport:
     data = table.drop(columns=[c for c in rate_cols if c in table.columns]).merge(
         rates, on=columns.ID, how="inner"
     )
-    trained_counts = {src: int((data[columns.RATE_SOURCE] == src).sum()) for src in ("measured", "fitted")}
     data = data.set_index(columns.ID)
 
     # ---- terms
@@ -257,6 +256,10 @@ def fit_campaign(campaign: Any) -> FitReport:
     else:
         is_test = np.zeros(len(data), dtype=bool)
     train, test = data[~is_test], data[is_test]
+    # what trained the model, by source; rows held out as the external test set do not count
+    trained_counts = {src: int((train[columns.RATE_SOURCE] == src).sum()) for src in ("measured", "fitted")}
+    if len(test):
+        trained_counts["held out as test set"] = int(len(test))
 
     # ---- search
     search_summary = None
@@ -318,7 +321,7 @@ def fit_campaign(campaign: Any) -> FitReport:
     out_dir = campaign.results_dir
     out_dir.mkdir(parents=True, exist_ok=True)
     warnings = [w for w in model.warnings_ if w.startswith("WARNING:")]
-    pred[columns.MODEL_WARNING] = warnings[0] if warnings else ""
+    pred = pred.assign(**{columns.MODEL_WARNING: warnings[0] if warnings else ""})
     pred_path = out_dir / "predictions.csv"
     write_csv(pred, pred_path)
     n_extra = int((pred[columns.DOMAIN] == "extrapolating").sum())
