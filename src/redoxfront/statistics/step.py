@@ -321,7 +321,8 @@ def fit_campaign(campaign: Any) -> FitReport:
     out_dir = campaign.results_dir
     out_dir.mkdir(parents=True, exist_ok=True)
     warnings = [w for w in model.warnings_ if w.startswith("WARNING:")]
-    pred = pred.assign(**{columns.MODEL_WARNING: warnings[0] if warnings else ""})
+    pred = pred.copy()  # one block per dtype again after the many merges
+    pred[columns.MODEL_WARNING] = warnings[0] if warnings else ""
     pred_path = out_dir / "predictions.csv"
     write_csv(pred, pred_path)
     n_extra = int((pred[columns.DOMAIN] == "extrapolating").sum())
