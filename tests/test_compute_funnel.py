@@ -151,3 +151,27 @@ def test_funnel_settings_are_validated(tmp_path):
         funnel_campaign(load_campaign(folder), progress=False)
     folder2 = _campaign(tmp_path / "b", SERIES[:2], "")
     assert not use_funnel(load_campaign(folder2))  # 2 rows: below the default threshold of 2000
+
+
+def test_run_on_a_library_above_the_threshold_goes_through_the_funnel(tmp_path):
+    from redoxfront.pipeline import run_campaign
+
+    (tmp_path / "inputs").mkdir()
+    (tmp_path / "campaign.toml").write_text(
+        'name = "funnel screen (invented)"\n'
+        "[compute]\nworkers = 1\n[compute.conformers]\nn_generate = 2\nrefine_lowest = 1\n"
+        "[library]\nscaffold = 'COc1ccc([*:1])cc1[*:2]'\noutput = 'inputs/candidates.csv'\n"
+        "[library.substituents]\n1 = ['H', 'C', 'OC']\n2 = ['H', 'C']\n"
+        "[funnel]\nthreshold = 4\nfraction = 0.2\ncalibration_sample = 3\n"
+        "[cell]\ncounter = 'potential'\ncounter_potential_v = -1.8\n"
+        "[ranking]\nobjectives = ['cell_voltage', 'molar_mass']\nn_draws = 50\nn_suggestions = 1\n",
+        encoding="utf-8")
+    lines: list[str] = []
+    run_campaign(tmp_path, progress=False, echo=lines.append)
+    funnel_line = next(line for line in lines if line.startswith("funnel"))
+    # 3 x 2 = 6 library members > threshold 4; sample of 3, top 20 % of 6 = 2 more at most
+    assert "fast tier: 6 of 6 candidates" in funnel_line and "threshold 4" in funnel_line
+    fast = pd.read_csv(tmp_path / "results" / "fast_tier.csv")
+    ranked = pd.read_csv(tmp_path / "results" / "ranking.csv")
+    assert len(fast) == 6 and 3 <= len(ranked) <= 5
+    assert set(ranked["id"]) == set(fast.loc[fast[SELECTION_COLUMN] != "not selected", "id"])
