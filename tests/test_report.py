@@ -143,3 +143,18 @@ def test_demo_assumptions_state_the_window_checked(demo_results):
     summary = json.loads((demo_results / "results" / "ranking_summary.json").read_text())
     window = summary["electrochemical_window"]
     assert f"<dt>Electrolyte window</dt><dd>{window['low_v']:.2f} to {window['high_v']:.2f} V vs Fc+/Fc" in html
+
+
+def test_card_intervals_of_negative_potentials_read_as_ranges_and_counterions_named_only_when_there():
+    from redoxfront.report.narrative import card_facts
+
+    rec = {"potential_shown": -2.76, "potential_shown_low": -3.13, "potential_shown_high": -2.32,
+           C.POTENTIAL_BASIS: "uncalibrated", C.MOLAR_MASS: 130.15, "counterions": ""}
+    facts = {f["label"]: f for f in card_facts(rec, "Fc+/Fc", objectives=("molar_mass",))}
+    assert facts["Potential"]["value"] == "-2.76 V vs Fc+/Fc"
+    assert facts["Potential"]["interval"] == "(-3.13 to -2.32) · uncalibrated"  # not "-3.13–-2.32"
+    assert facts["Molar mass"]["interval"] == ""  # a neutral molecule has no counterions to mention
+    rec.update({"counterions": "F[B-](F)(F)F", C.MOLAR_MASS: 217.0})
+    facts = {f["label"]: f for f in card_facts(rec, "Fc+/Fc", objectives=("molar_mass",))}
+    assert facts["Molar mass"]["interval"] == "with counterions"
+    assert F.range_text("20.0", "21.6") == "20.0–21.6"

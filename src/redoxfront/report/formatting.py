@@ -87,6 +87,11 @@ def number(value: Any, kind: str, digits: int) -> str:
     return fixed(value, digits)
 
 
+def range_text(low: str, high: str) -> str:
+    """'20.0–21.6', or '-3.46 to -2.65' where a dash between negative numbers would misread."""
+    return f"{low} to {high}" if low.startswith("-") or high.startswith("-") else f"{low}–{high}"
+
+
 def duration_words(hours: Any) -> str:
     """A half-life in hours said in the unit a reader thinks in: '≈ 140 days', '≈ 3.1 years'."""
     h = as_float(hours)

@@ -78,7 +78,7 @@ def _with_interval(rec: Mapping[str, Any], key: str, low: str, high: str, kind: 
         return ""
     lo, hi = F.number(rec.get(low), kind, digits), F.number(rec.get(high), kind, digits)
     unit_text = f"{value} {unit}" if unit else value
-    return f"{unit_text} ({lo}–{hi})" if lo and hi and not lo == hi == value else unit_text
+    return f"{unit_text} ({F.range_text(lo, hi)})" if lo and hi and not lo == hi == value else unit_text
 
 
 def _basis_words(rec: Mapping[str, Any]) -> str:
@@ -88,7 +88,7 @@ def _basis_words(rec: Mapping[str, Any]) -> str:
 
 def _interval(rec: Mapping[str, Any], low: str, high: str, kind: str, digits: int) -> str:
     lo, hi = F.number(rec.get(low), kind, digits), F.number(rec.get(high), kind, digits)
-    return f"({lo}–{hi})" if lo and hi and lo != hi else ""
+    return f"({F.range_text(lo, hi)})" if lo and hi and lo != hi else ""
 
 
 def card_facts(rec: Mapping[str, Any], r: str, objectives: list[str] | tuple[str, ...] = ()) -> list[dict[str, str]]:
@@ -121,7 +121,8 @@ def card_facts(rec: Mapping[str, Any], r: str, objectives: list[str] | tuple[str
     ]
     if "molar_mass" in objectives:
         facts.append(("Molar mass", F.fixed(rec.get(C.MOLAR_MASS), 1) + " g/mol" if F.as_float(rec.get(C.MOLAR_MASS)) is not None else "",
-                      "with counterions"))
+                      "with counterions" if not F._missing(rec.get("counterions")) and str(rec.get("counterions")).strip()
+                      else ""))
     return [{"label": a, "value": b, "interval": c} for a, b, c in facts if b]
 
 
