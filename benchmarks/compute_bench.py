@@ -44,6 +44,7 @@ from redoxfront.engine.optimizer import (  # noqa: E402
 )
 from redoxfront.engine.xtb import TbliteEngine  # noqa: E402
 from redoxfront.units import HARTREE_KCAL_PER_MOL  # noqa: E402
+from targets import finish, ratio_to_target  # noqa: E402
 
 INVENTED = Path(__file__).resolve().parent / "invented_candidates.csv"
 SITES = {"ring_alkoxy": {"smarts": "c-[OX2][CX4]", "atoms": [1, 2], "several_places": "min"}}
@@ -51,10 +52,8 @@ SITES = {"ring_alkoxy": {"smarts": "c-[OX2][CX4]", "atoms": [1, 2], "several_pla
 
 
 def verdict(label: str, value: float, target: float, higher_is_better: bool, missed: list[str]) -> str:
-    ratio = target / value if higher_is_better else value / target
-    if ratio > 1.0:
-        missed.append(label)
-    return f"ratio to target {ratio:.2f} ({'meets' if ratio <= 1.0 else 'MISSES'})"
+    ratio, ok = ratio_to_target(label, value, target, higher_is_better, missed)
+    return f"ratio to target {ratio:.2f} ({'meets' if ok else 'MISSES'})"
 
 
 def main() -> int:
@@ -124,10 +123,7 @@ def main() -> int:
         print(f"optimiser wall time: RFO {wall_ours:.1f} s vs L-BFGS {wall_base:.1f} s: ratio "
               f"{wall_ours / wall_base:.2f} (target <= 0.8; "
               f"{verdict('optimiser wall time', wall_ours / wall_base, 0.8, False, missed)})")
-    print(f"load average at end: {os.getloadavg()[0]:.2f} (1 min)")
-    if missed:
-        print("MISSED: " + "; ".join(missed))
-    return 1 if missed else 0
+    return finish(missed)
 
 
 if __name__ == "__main__":

@@ -39,6 +39,7 @@ for _var in THREAD_VARIABLES:
 import numpy as np  # noqa: E402
 
 from redoxfront.campaign import ComputeSettings  # noqa: E402
+from targets import finish, ratio_to_target  # noqa: E402
 
 SUBSTITUENTS = ["H", "C", "CC", "CCC", "C(C)C", "F", "Cl", "Br", "OC", "OCC", "SC", "N(C)C", "C#N", "C=O",
                 "C(C)=O", "CO", "NC=O", "C(N)=O"]
@@ -83,10 +84,7 @@ def fast_tier_end_to_end(csv: Path, out: Path, store: Path, settings: ComputeSet
 
 
 def line(label: str, value: float, unit: str, target: float, higher_is_better: bool, missed: list[str]) -> None:
-    ratio = target / value if higher_is_better else value / target
-    ok = ratio <= 1.0
-    if not ok:
-        missed.append(label)
+    ratio, ok = ratio_to_target(label, value, target, higher_is_better, missed)
     sign = ">=" if higher_is_better else "<="
     print(f"  {label:52s} {value:12,.2f} {unit:14s} target {sign} {target:,.6g}: ratio {ratio:5.2f} "
           f"({'meets' if ok else 'MISSES'})", flush=True)
@@ -154,10 +152,7 @@ def main() -> int:
         line("driver peak resident set with 100,000 jobs + rows", peak, "MiB", 2048, False, missed)
         print(f"    (of which the 100,000 jobs and rows added {peak - before:.0f} MiB; {len(jobs)} jobs, "
               f"{frame.shape} table)")
-    print(f"load average at end: {' '.join(f'{x:.2f}' for x in os.getloadavg())} (1, 5, 15 min)")
-    if missed:
-        print("MISSED: " + "; ".join(missed))
-    return 1 if missed else 0
+    return finish(missed, all_loads=True)
 
 
 if __name__ == "__main__":
