@@ -129,3 +129,41 @@ def sdf_rows(path: Path) -> Iterator[Row]:
         yield i, row
     if n == 0:
         raise InputError("no molecules in the SDF file", source=str(path))
+
+
+SDF_TERMINATOR = b"\n$$$$"
+"""A record of an SDF file ends with a line that starts with ``$$$$`` (CTfile formats, BIOVIA)."""
+
+
+def _scan_sdf(text: bytes, count: int, pending: bool) -> tuple[int, bool]:
+    """Terminator lines in ``text`` (whole lines, led by a newline) and whether anything but
+    white space follows the last one (a final record without its terminator)."""
+    k = text.count(SDF_TERMINATOR)
+    if k:
+        rest = text[text.rfind(SDF_TERMINATOR) + 1:].partition(b"\n")[2]
+        return count + k, bool(rest.strip())
+    return count, pending or bool(text.strip())
+
+
+def count_rows(path: str | Path, *, chunk_bytes: int = 1 << 22) -> int:
+    """Candidate rows of a file without parsing a molecule: the records of an SDF file
+    (terminator lines ``$$$$``, plus a last record that lacks one, as RDKit reads them), the
+    lines after the header of a CSV/TSV file. Read in chunks (bounded memory); 0 for a file
+    that does not exist."""
+    path = Path(path)
+    if not path.is_file():
+        return 0
+    if path.suffix.lower() not in SDF_SUFFIXES:
+        with open(path, "rb") as fh:
+            return max(0, sum(1 for _ in fh) - 1)
+    count, pending, carry = 0, False, b""
+    with open(path, "rb") as fh:
+        while chunk := fh.read(chunk_bytes):
+            buf = carry + chunk
+            cut = buf.rfind(b"\n") + 1  # whole lines now, the rest with the next chunk
+            carry = buf[cut:]
+            count, pending = _scan_sdf(b"\n" + buf[:cut], count, pending)
+    if carry:
+        count, pending = _scan_sdf(b"\n" + carry + b"\n", count, pending)
+    return count + int(pending)
+

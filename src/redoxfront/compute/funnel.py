@@ -279,13 +279,12 @@ def _estimate(fast: Any, full_table: Any, ref: str, vcol: str, ok: np.ndarray) -
 
 
 def use_funnel(campaign: Campaign) -> bool:
-    """True when the campaign's candidates file has more rows than ``[funnel] threshold``."""
+    """True when the campaign's candidates file has more rows than ``[funnel] threshold``
+    (CSV lines after the header or SDF records, counted without parsing molecules)."""
+    from redoxfront.candidates.files import count_rows
+
     path = Path(campaign.path(campaign.inputs.candidates, "[inputs] candidates"))
-    if not path.exists() or path.suffix.lower() not in (".csv", ".tsv", ".txt"):
-        return False
-    with open(path, "rb") as fh:
-        rows = sum(1 for _ in fh) - 1
-    return rows > funnel_settings(campaign).threshold
+    return count_rows(path) > funnel_settings(campaign).threshold
 
 
 __all__ = ["PROXIES", "FunnelReport", "FunnelSettings", "RULES", "SELECTION_COLUMN", "TierLine", "calibration_sample",
