@@ -155,6 +155,22 @@ def test_against_morfeus(smiles: str, smarts: str, radii_set: str) -> None:
     assert abs(ours.b5_angstrom - ref.B_5_value) <= 0.05
 
 
+@pytest.mark.parametrize("spread_deg", [100.3, 137.77, 61.9])
+def test_b1_between_two_atoms_off_the_scan_grid(spread_deg: float) -> None:
+    # geometry: substituent atoms at unit distance from the L axis, spread_deg apart around it,
+    # radius 1.0, on an axis atom of radius 0.1; the narrowest direction points away from both,
+    # midway, so B1 = 1 - cos(spread / 2) (hand calculation). The angle is off the 0.5 degree scan grid (and the
+    # pose random): the refinement must find it to 1e-6 Angstrom
+    half = np.radians(spread_deg / 2)
+    local = np.array([[0.0, 0.0, -1.5], [0.0, 0.0, 0.0],
+                      [np.cos(half), np.sin(half), 0.8], [np.cos(half), -np.sin(half), 1.3]])
+    rot, _ = np.linalg.qr(np.random.default_rng(int(spread_deg * 100)).normal(size=(3, 3)))
+    x = local @ rot.T + np.array([0.3, -2.0, 1.1])
+    res = sterimol(x, np.array([1.5, 0.1, 1.0, 1.0]), 0, 1, np.array([1, 2, 3]))
+    assert res.b1_angstrom == pytest.approx(1.0 - np.cos(half), abs=1e-6)
+    assert res.b5_angstrom == pytest.approx(2.0, abs=1e-12)
+
+
 def test_l_origin_verloop_ignores_real_bond_length() -> None:
     mol = _mmff("Cc1ccccc1")
     x = mol.GetConformer().GetPositions()

@@ -17,6 +17,8 @@ Settings are the campaign's ``[descriptors]`` section (:class:`DescriptorSetting
 from __future__ import annotations
 
 import dataclasses
+import functools
+import json
 
 from dataclasses import dataclass, field
 from typing import Any, Callable, Mapping
@@ -97,14 +99,29 @@ class DescriptorSettings:
     temperature_k: float = field(default=STANDARD_TEMPERATURE_K, metadata=bounded(1.0, None))
 
 
+_SETTINGS_CACHE: dict[str, tuple[SitesSettings, DescriptorSettings]] = {}
+"""Validated settings by the text of the raw tables: a worker describes many candidates of one
+campaign and validates its tables once (validation reads type hints, about 1 ms a time)."""
+
+
 def _settings(
     sites: SitesSettings | Mapping[str, Any] | None,
     desc: DescriptorSettings | Mapping[str, Any] | None,
 ) -> tuple[SitesSettings, DescriptorSettings]:
+    key = None
+    if not isinstance(sites, SitesSettings) and not isinstance(desc, DescriptorSettings):
+        try:
+            key = json.dumps([sites, desc], sort_keys=True)
+        except (TypeError, ValueError):  # not plain TOML data: validate every time
+            key = None
+        if key is not None and key in _SETTINGS_CACHE:
+            return _SETTINGS_CACHE[key]
     s = sites if isinstance(sites, SitesSettings) else sites_from_mapping(sites)
     d = desc if isinstance(desc, DescriptorSettings) else section_from_mapping(
         DescriptorSettings, desc, "descriptors"
     )
+    if key is not None and len(_SETTINGS_CACHE) < 64:
+        _SETTINGS_CACHE[key] = (s, d)
     return s, d
 
 
@@ -130,7 +147,15 @@ def descriptor_columns(
     states: tuple[str, ...] = (STATE_DISCHARGED, STATE_CHARGED),
 ) -> list[str]:
     """Every column :func:`descriptors_for_candidate` returns, in order, for these sites/states."""
-    sites, _ = _settings(sites_settings, None)
+    sites = sites_settings if isinstance(sites_settings, SitesSettings) else _settings(sites_settings, None)[0]
+    try:
+        return list(_columns(sites, tuple(states)))
+    except TypeError:  # settings built by hand with a list inside: not hashable, not cached
+        return list(_columns.__wrapped__(sites, tuple(states)))
+
+
+@functools.lru_cache(maxsize=32)
+def _columns(sites: SitesSettings, states: tuple[str, ...]) -> tuple[str, ...]:
     out: list[str] = []
 
     def add(quantity: str, site: str | None = None, state: str | None = None) -> None:
@@ -152,7 +177,7 @@ def descriptor_columns(
     if STATE_INTERMEDIATE in states:
         out.append(columns.REORGANISATION_ENERGY_2)
     out.append(columns.DESCRIPTOR_NOTES)
-    return out
+    return tuple(out)
 
 
 def _radical_state(cs: CandidateStates) -> StateResult | None:
@@ -199,6 +224,29 @@ class _Row:
                 break
         for j, q in enumerate(quantities):
             self.put(q, summarise(vals[:, j], ens), site, state.state if q == "partial_charge_e" else None)
+
+
+class _Surfaces:
+    """Accessible areas (square Angstrom) per conformer, each computed once per candidate: the
+    whole molecule for the state whose spin exposure needs every atom (a site atom of that state
+    then reads its area from there), one atom at a time otherwise."""
+
+    def __init__(self, cs: CandidateStates, ds: DescriptorSettings, radii: np.ndarray, whole_for: str | None):
+        self.cs, self.ds, self.radii, self.whole_for = cs, ds, radii, whole_for
+        self._whole: dict[tuple[str, int], np.ndarray] = {}
+
+    def _area(self, state: str, k: int, atoms: list[int] | None) -> np.ndarray:
+        return atom_sasa(self.cs.states[state].conformers[k].positions_angstrom, self.radii,
+                         probe_angstrom=self.ds.surface_probe_radius_angstrom,
+                         n_points=self.ds.surface_points_per_atom, atoms=atoms)
+
+    def whole(self, state: str, k: int) -> np.ndarray:
+        if (state, k) not in self._whole:
+            self._whole[state, k] = self._area(state, k, None)
+        return self._whole[state, k]
+
+    def atom(self, state: str, k: int, i: int) -> float:
+        return float(self.whole(state, k)[i] if state == self.whole_for else self._area(state, k, [i])[0])
 
 
 def descriptors_for_candidate(
@@ -249,15 +297,23 @@ def descriptors_for_candidate(
     for s in present:
         row.values[columns.conformers_used_column(s)] = float(len(ens[s].used))
 
-    _steric(row, mol_with_hs, states, ds, sites, matches, ens)
-    _electronic(row, mol_with_hs, states, ds, matches, ens, present)
+    try:
+        r_bondi: np.ndarray | RedoxfrontError = vdw_radii(mol_with_hs, "bondi")
+    except RedoxfrontError as exc:
+        r_bondi = exc
+    rad = _radical_state(states)
+    spins_stored = rad is not None and all(rad.conformers[k].spin_density is not None for k in ens[rad.state].used)
+    surfaces = None if isinstance(r_bondi, RedoxfrontError) else _Surfaces(
+        states, ds, r_bondi, rad.state if spins_stored and rad is not None else None)
+    _steric(row, mol_with_hs, states, ds, sites, matches, ens, surfaces)
+    _electronic(row, mol_with_hs, states, ds, matches, ens, present, surfaces)
     row.values[columns.DESCRIPTOR_NOTES] = "; ".join(row.notes)
     return row.values
 
 
 def _steric(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSettings,
             sites: SitesSettings, matches: dict[str, SiteMatch],
-            ens: dict[str, EnsembleWeights]) -> None:
+            ens: dict[str, EnsembleWeights], surfaces: _Surfaces | None) -> None:
     geo_state = ds.geometry_state
     if geo_state not in cs.states and STATE_REDUCED in cs.states and STATE_OXIDISED in cs.states:
         # a bipolar candidate has two charged forms: one set of steric descriptors, from the
@@ -270,24 +326,22 @@ def _steric(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSetting
         return
     w = ens[geo_state]
     try:
-        r_sterimol = vdw_radii(mol, ds.sterimol_radii)
-        r_clear = vdw_radii(mol, ds.clearance_radii)
-        r_bondi = vdw_radii(mol, "bondi")
+        if surfaces is None:  # no Bondi radius for an element: say which
+            vdw_radii(mol, "bondi")
+        assert surfaces is not None
+        r_bondi = surfaces.radii
+        r_cpk = vdw_radii(mol, "cpk") if "cpk" in (ds.sterimol_radii, ds.clearance_radii) else r_bondi
     except RedoxfrontError as exc:
         row.note(str(exc))
         return
+    r_sterimol = r_cpk if ds.sterimol_radii == "cpk" else r_bondi
+    r_clear = r_cpk if ds.clearance_radii == "cpk" else r_bondi
     r_bv = r_bondi * ds.buried_volume_radii_scale
     heavy = np.array([a.GetAtomicNum() > 1 for a in mol.GetAtoms()])
-    sasa_cache: dict[int, np.ndarray] = {}
-
-    def sasa(k: int) -> np.ndarray:
-        if k not in sasa_cache:
-            sasa_cache[k] = atom_sasa(
-                geo.conformers[k].positions_angstrom, r_bondi,
-                probe_angstrom=ds.surface_probe_radius_angstrom,
-                n_points=ds.surface_points_per_atom,
-            )
-        return sasa_cache[k]
+    # (centre atom, conformer) -> (buried volume, surface area): a site's places are measured
+    # once, whether to pick one place ("min"/"max") or to report it, and a centre shared by
+    # two sites once
+    site_atom_cache: dict[tuple[int, int], tuple[float, float]] = {}
 
     for spec in sites.sites:
         m = matches[spec.name]
@@ -302,11 +356,13 @@ def _steric(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSetting
             include[centre] = ds.buried_volume_include_site_atom
 
             def fn(k: int) -> tuple[float, ...]:
-                x = geo.conformers[k].positions_angstrom
-                bv = percent_buried_volume(x, r_bv, centre, include,
-                                           sphere_radius_angstrom=ds.buried_volume_sphere_radius_angstrom,
-                                           spacing_angstrom=ds.buried_volume_grid_spacing_angstrom)
-                return bv, float(sasa(k)[centre])
+                if (centre, k) not in site_atom_cache:
+                    x = geo.conformers[k].positions_angstrom
+                    bv = percent_buried_volume(x, r_bv, centre, include,
+                                               sphere_radius_angstrom=ds.buried_volume_sphere_radius_angstrom,
+                                               spacing_angstrom=ds.buried_volume_grid_spacing_angstrom)
+                    site_atom_cache[centre, k] = (bv, surfaces.atom(geo_state, k, centre))
+                return site_atom_cache[centre, k]
             return fn
 
         if len(m.places) > 1 and m.summary in ("min", "max"):
@@ -396,7 +452,7 @@ def _at_places(per_atom: list[np.ndarray | None], m: SiteMatch) -> np.ndarray:
 
 def _electronic(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSettings,
                 matches: dict[str, SiteMatch], ens: dict[str, EnsembleWeights],
-                present: tuple[str, ...]) -> None:
+                present: tuple[str, ...], surfaces: _Surfaces | None) -> None:
     masses = np.array([a.GetMass() for a in mol.GetAtoms()])
     is_carbon = np.array([a.GetAtomicNum() == 6 for a in mol.GetAtoms()])
     found = {n: m for n, m in matches.items() if m.found}
@@ -428,19 +484,17 @@ def _electronic(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSet
                 "in [compute] to get them"
             )
         else:
-            try:
-                r_bondi = vdw_radii(mol, "bondi")
-            except RedoxfrontError as exc:
-                row.note(str(exc))
-                r_bondi = np.full(mol.GetNumAtoms(), np.nan)
+            if surfaces is None:  # no radii for an element: the exposure stays empty
+                try:
+                    vdw_radii(mol, "bondi")
+                except RedoxfrontError as exc:
+                    row.note(str(exc))
             n = len(rad.conformers)
             max_c = np.full(n, np.nan)
             exposure = np.full(n, np.nan)
             for k in w.used:
                 sp = np.asarray(spins[k], dtype=float)
-                area = atom_sasa(rad.conformers[k].positions_angstrom, r_bondi,
-                                 probe_angstrom=ds.surface_probe_radius_angstrom,
-                                 n_points=ds.surface_points_per_atom)
+                area = surfaces.whole(rad.state, int(k)) if surfaces is not None else np.full(len(sp), np.nan)
                 max_c[k] = sp[is_carbon].max() if is_carbon.any() else np.nan
                 exposure[k] = float(sp @ area)
             row.put("spin_density_max_carbon", summarise(max_c, w))
