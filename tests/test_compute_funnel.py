@@ -15,6 +15,7 @@ from redoxfront.compute.fast_tier import (
     FastJob,
     fast_tier_hash,
     fast_vertical_column,
+    force_field_geometry,
     run_fast_tier,
 )
 from redoxfront.compute.funnel import (
@@ -175,3 +176,25 @@ def test_run_on_a_library_above_the_threshold_goes_through_the_funnel(tmp_path):
     ranked = pd.read_csv(tmp_path / "results" / "ranking.csv")
     assert len(fast) == 6 and 3 <= len(ranked) <= 5
     assert set(ranked["id"]) == set(fast.loc[fast[SELECTION_COLUMN] != "not selected", "id"])
+
+
+def test_force_field_geometry_adds_hydrogens_in_rdkit_order_with_sane_bonds():
+    from rdkit import Chem
+
+    mol = Chem.MolFromSmiles("COc1ccc(OC)cc1")
+    mol_h = force_field_geometry(mol, seed=7)
+    ref = Chem.AddHs(mol)
+    assert [a.GetAtomicNum() for a in mol_h.GetAtoms()] == [a.GetAtomicNum() for a in ref.GetAtoms()]
+    xyz = mol_h.GetConformer().GetPositions()
+    lengths = {}
+    for b in mol_h.GetBonds():
+        pair = "".join(sorted(b.GetBeginAtom().GetSymbol() + b.GetEndAtom().GetSymbol()))
+        kind = "arom" if b.GetIsAromatic() else pair
+        lengths.setdefault(kind, []).append(np.linalg.norm(xyz[b.GetBeginAtomIdx()] - xyz[b.GetEndAtomIdx()]))
+    # CRC Handbook of Chemistry and Physics, "Bond lengths in organic compounds": aromatic C-C 1.39 A,
+    # C(sp3)-H 1.09-1.10 A, aryl C-O 1.36 A and alkyl C-O 1.43 A; 0.03 A is a force field's usual reach
+    assert np.allclose(lengths["arom"], 1.39, atol=0.03)
+    assert np.allclose(lengths["CH"], 1.09, atol=0.03)
+    assert min(lengths["CO"]) == pytest.approx(1.36, abs=0.03) and max(lengths["CO"]) == pytest.approx(1.43, abs=0.03)
+    again = force_field_geometry(mol, seed=7).GetConformer().GetPositions()
+    assert np.array_equal(xyz, again)  # common practice, no source: one seed, one geometry

@@ -66,3 +66,16 @@ def test_restart_gives_same_energy():
 def test_unknown_engine():
     with pytest.raises(SettingsError, match="unknown engine 'orca'; allowed: tblite, xtb-python"):
         make_engine("orca", "GFN2-xTB", None)
+
+
+def test_fast_knobs_change_the_start_not_the_answer():
+    z, x = _geometry("COc1ccc(OC)cc1")
+    default = TbliteEngine().compute(z, x, 0, 0)
+    fast = make_engine("tblite", "GFN2-xTB", "acetonitrile", accuracy=10.0, guess="eeq").compute(z, x, 0, 0)
+    # both SCCs converge to the same GFN2-xTB solution: energy within 1e-4 Eh and frontier orbitals within
+    # 0.005 eV at accuracy factor 10 (tblite's convergence thresholds scale with it; common practice, no source)
+    assert fast.energy_eh == pytest.approx(default.energy_eh, abs=1e-4)
+    assert fast.homo_eh * 27.211386 == pytest.approx(default.homo_eh * 27.211386, abs=5e-3)
+    assert fast.lumo_eh * 27.211386 == pytest.approx(default.lumo_eh * 27.211386, abs=5e-3)
+    with pytest.raises(SettingsError, match="unknown start guess 'huckel'; allowed: sad, eeq"):
+        make_engine("tblite", "GFN2-xTB", None, guess="huckel")

@@ -1,9 +1,9 @@
 """The fast tier: a first pass that every candidate of a large library gets.
 
-Per candidate: one force-field geometry (RDKit ETKDGv3, one conformer, MMFF94 with UFF as
-fallback; Riniker & Landrum, J. Chem. Inf. Model. 2015, 55, 2562; Halgren, J. Comput. Chem.
-1996, 17, 490) and two GFN2-xTB + ALPB single points at that geometry (tblite): the discharged
-state and the first state of charging. From them:
+Per candidate: one force-field geometry (RDKit ETKDGv3 on the heavy atoms, one conformer, MMFF94
+with UFF as fallback; :func:`force_field_geometry`) and one or two GFN2-xTB + ALPB single points
+at that geometry (tblite, EEQ start guess, accuracy factor 10): the discharged state and the
+first state of charging. From them:
 
 * the vertical potential, uncalibrated, V vs the campaign's reference: the adiabatic formula of
   :mod:`redoxfront.engine.potentials` with both energies at the discharged geometry (no
@@ -47,6 +47,16 @@ FAST_LUMO = "fast_tier_lumo_discharged_ev"
 FAST_SECONDS = "fast_tier_wall_time_s"
 FAST_ORBITAL_PROXY = "fast_tier_orbital_proxy_ev"
 """-HOMO (catholyte) or -LUMO (anolyte) of the discharged state at the force-field geometry, eV."""
+FORCE_FIELD_ITERATIONS = 100
+"""Most MMFF94 steps of the fast tier's geometry. Measured against the full tier (docs/funnel.md):
+100 steps from a heavy-atom embedding ranked candidates as well as 200 or 1000 steps (most
+molecules are not converged at 200 either; the single conformer varies the orbital energies more
+than the last steps of the force field do)."""
+ENGINE_ACCURACY = 10.0
+"""tblite accuracy factor of the fast tier's single points (1 is tblite's default): orbital
+energies within 0.003 eV of accuracy 1 on the benchmark library, about 15 % less engine time."""
+ENGINE_GUESS = "eeq"
+"""Start guess of the fast tier's single points: EEQ charges (fewer SCC iterations than SAD)."""
 POINTS = ("both", "discharged")
 """Single points of the fast tier: both states (vertical potential and orbitals) or the
 discharged state only (orbitals, the orbital proxy)."""
@@ -85,29 +95,41 @@ def fast_tier_hash(settings: ComputeSettings) -> str:
     from rdkit import __version__ as rdkit_version
 
     keep = {"tier": TIER_FAST, "solvent": settings.solvent, "method": settings.method,
-            "engine": settings.engine, "seed": settings.seed, "rdkit": rdkit_version, "schema": 1}
+            "engine": settings.engine, "seed": settings.seed, "rdkit": rdkit_version, "schema": 2,
+            "geometry": f"ETKDGv3 heavy atoms + MMFF94 <= {FORCE_FIELD_ITERATIONS} steps",
+            "accuracy": ENGINE_ACCURACY, "guess": ENGINE_GUESS}
     return hashlib.sha256(json.dumps(keep, sort_keys=True).encode()).hexdigest()[:16]
 
 
-def force_field_geometry(mol_h: Any, seed: int) -> Any:
-    """One conformer: ETKDGv3 embedding then MMFF94 (UFF if MMFF lacks types), Angstrom.
+def force_field_geometry(mol: Any, seed: int) -> Any:
+    """One conformer of ``mol`` (no explicit hydrogens): the molecule with hydrogens and coordinates, Angstrom.
 
-    Returns the positions as an (n_atoms, 3) array. Raises InputError when RDKit cannot embed.
+    ETKDGv3 embeds the heavy atoms only (Riniker & Landrum, J. Chem. Inf. Model. 2015, 55,
+    2562), the hydrogens are placed on them (RDKit ``AddHs(addCoords=True)``), then at most
+    :data:`FORCE_FIELD_ITERATIONS` steps of MMFF94 (Halgren, J. Comput. Chem. 1996, 17, 490;
+    UFF when MMFF lacks types) relax the whole molecule. The hydrogens come in the order
+    ``Chem.AddHs`` gives them. Raises InputError when RDKit cannot embed.
     """
+    from rdkit import Chem, rdBase
     from rdkit.Chem import AllChem
 
+    heavy = Chem.Mol(mol)
     params = AllChem.ETKDGv3()
     params.randomSeed = seed
     params.numThreads = 1
-    if AllChem.EmbedMolecule(mol_h, params) < 0:
-        params.useRandomCoords = True
-        if AllChem.EmbedMolecule(mol_h, params) < 0:
-            raise InputError("RDKit could not embed 3D coordinates", field="smiles")
+    with rdBase.BlockLogs():  # RDKit's advice to add hydrogens first: here they come after, on purpose
+        placed = AllChem.EmbedMolecule(heavy, params) >= 0
+        if not placed:
+            params.useRandomCoords = True
+            placed = AllChem.EmbedMolecule(heavy, params) >= 0
+    if not placed:
+        raise InputError("RDKit could not embed 3D coordinates", field="smiles")
+    mol_h = Chem.AddHs(heavy, addCoords=True)
     if AllChem.MMFFHasAllMoleculeParams(mol_h):
-        AllChem.MMFFOptimizeMolecule(mol_h, maxIters=200)
+        AllChem.MMFFOptimizeMolecule(mol_h, maxIters=FORCE_FIELD_ITERATIONS)
     elif AllChem.UFFHasAllMoleculeParams(mol_h):
-        AllChem.UFFOptimizeMolecule(mol_h, maxIters=200)
-    return mol_h.GetConformer().GetPositions()
+        AllChem.UFFOptimizeMolecule(mol_h, maxIters=FORCE_FIELD_ITERATIONS)
+    return mol_h
 
 
 def _point_payload(energy_eh: float, homo_eh: float, lumo_eh: float, charge: int, uhf: int) -> dict[str, Any]:
@@ -137,15 +159,15 @@ def fast_candidate(job: FastJob, settings: ComputeSettings,
     ref = settings.reference
     row: dict[str, Any] = {"id": job.id, "canonical_smiles": job.smiles, "role": job.role}
     payloads: dict[str, dict[str, Any]] = {}
-    engine = make_engine(settings.engine, settings.method, settings.solvent)
+    engine = make_engine(settings.engine, settings.method, settings.solvent, accuracy=ENGINE_ACCURACY,
+                         guess=ENGINE_GUESS)
     if job.role == "bipolar":
         row[FAST_STATUS] = "not in the fast tier: bipolar rows go to the full tier"
         return FastResult(job.id, job.smiles, row, payloads, 0.0, time.perf_counter() - t0)
     stored = stored or {}
     try:
-        mol_h = Chem.AddHs(Chem.MolFromSmiles(job.smiles))
-        numbers = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
-        first, second = redox_states(mol_h, job.role, job.n_electrons)[:2]
+        mol = Chem.MolFromSmiles(job.smiles)
+        first, second = redox_states(Chem.AddHs(mol), job.role, job.n_electrons)[:2]
         wanted = (first, second) if points == "both" else (first,)
         found_points = {}
         xyz = None
@@ -154,7 +176,9 @@ def fast_candidate(job: FastJob, settings: ComputeSettings,
             found = stored.get(name)
             if found is None:
                 if xyz is None:
-                    xyz = force_field_geometry(mol_h, settings.seed)
+                    mol_h = force_field_geometry(mol, settings.seed)
+                    numbers = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
+                    xyz = mol_h.GetConformer().GetPositions()
                 res = engine.compute(numbers, xyz, st.charge, st.uhf,
                                      spin_polarized=settings.spin_polarized and st.uhf > 0)
                 found = _point_payload(res.energy_eh, res.homo_eh, res.lumo_eh, st.charge, st.uhf)
@@ -239,7 +263,7 @@ def run_fast_tier(
 
 
 __all__ = [
-    "FAST_ENTRY_PREFIX", "FAST_HOMO", "FAST_ORBITAL_PROXY", "POINTS", "FAST_LUMO", "FAST_SECONDS", "FAST_STATUS", "FastJob", "FastResult",
+    "ENGINE_ACCURACY", "ENGINE_GUESS", "FAST_ENTRY_PREFIX", "FAST_HOMO", "FORCE_FIELD_ITERATIONS", "FAST_ORBITAL_PROXY", "POINTS", "FAST_LUMO", "FAST_SECONDS", "FAST_STATUS", "FastJob", "FastResult",
     "TIER_FAST", "TIER_FULL", "chunked", "fast_candidate", "fast_tier_hash", "fast_vertical_column",
     "force_field_geometry", "run_fast_tier",
 ]

@@ -20,6 +20,9 @@ import numpy as np
 from redoxfront.errors import EngineError, SettingsError
 from redoxfront.units import ANGSTROM_BOHR
 
+TBLITE_GUESSES: dict[str, int] = {"sad": 0, "eeq": 1}
+"""Names of tblite's start guesses and its codes for them (tblite's Python API: 0 SAD, 1 EEQ)."""
+
 # Elements parametrised in GFN2-xTB and GFN1-xTB: H to Rn (Z = 1..86).
 SUPPORTED_ELEMENTS_MAX_Z: int = 86
 
@@ -99,7 +102,11 @@ class TbliteEngine:
     method: str = "GFN2-xTB"
     solvent: str | None = "acetonitrile"
     accuracy: float = 1.0
+    """tblite's accuracy factor: 1 is its default; larger loosens the SCC convergence."""
     max_scc_iterations: int = 250
+    guess: str = "sad"
+    """Start of the SCC without a restart: 'sad' (superposition of atomic densities, tblite's
+    default) or 'eeq' (charges of the electronegativity-equilibration model)."""
     stats: EngineStats = field(default_factory=EngineStats)
     _calc: object | None = field(default=None, repr=False)
     _key: tuple | None = field(default=None, repr=False)
@@ -115,6 +122,7 @@ class TbliteEngine:
         calc.set("verbosity", 0)
         calc.set("accuracy", self.accuracy)
         calc.set("max-iter", self.max_scc_iterations)
+        calc.set("guess", TBLITE_GUESSES[self.guess])
         solvent = _solvent_or_none(self.solvent)
         if solvent is not None:
             calc.add("alpb-solvation", solvent)
@@ -237,10 +245,17 @@ class XtbPythonEngine:
         return out
 
 
-def make_engine(name: str, method: str, solvent: str | None) -> Engine:
-    """Engine by its campaign name ('tblite' or 'xtb-python')."""
+def make_engine(name: str, method: str, solvent: str | None, *, accuracy: float = 1.0,
+                guess: str = "sad") -> Engine:
+    """Engine by its campaign name ('tblite' or 'xtb-python').
+
+    ``accuracy`` and ``guess`` (tblite only; xtb-python keeps its own start guess) are the
+    fast tier's knobs; the full tier uses the defaults.
+    """
+    if guess not in TBLITE_GUESSES:
+        raise SettingsError(f"unknown start guess '{guess}'; allowed: {', '.join(TBLITE_GUESSES)}")
     if name == "tblite":
-        return TbliteEngine(method=method, solvent=solvent)
+        return TbliteEngine(method=method, solvent=solvent, accuracy=accuracy, guess=guess)
     if name == "xtb-python":
-        return XtbPythonEngine(method=method, solvent=solvent)
+        return XtbPythonEngine(method=method, solvent=solvent, accuracy=accuracy)
     raise SettingsError(f"unknown engine '{name}'; allowed: tblite, xtb-python")
