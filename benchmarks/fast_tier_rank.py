@@ -8,7 +8,7 @@ the fast tier, and prints per set and role: Spearman rho of the full-tier potent
 fast-tier vertical potential and against the orbital proxy (-HOMO for catholytes, -LUMO for
 anolytes), and how many of the full tier's top 10 % the funnel keeps at its default rule.
 The figures go to docs/funnel.md as printed. Usage:
-  .venv/bin/python benchmarks/fast_tier_rank.py [--workers 2] [--reference-count 20]
+  .venv/bin/python benchmarks/fast_tier_rank.py [--workers 2] [--reference-count 20] [--store DIR]
 """
 
 from __future__ import annotations
@@ -64,12 +64,12 @@ def reference_candidates(settings: ComputeSettings, count: int):
     return out
 
 
-def compare(name: str, cands, settings: ComputeSettings, workers: int) -> list[str]:
+def compare(name: str, cands, settings: ComputeSettings, workers: int, keep: Path | None = None) -> list[str]:
     ref = settings.reference
     with tempfile.TemporaryDirectory() as tmp:
-        store = str(Path(tmp) / "s.sqlite")
+        store = str((keep or Path(tmp)) / f"{name.split()[0]}.sqlite")
         full, _ = compute_candidates(cands, settings, store, workers=workers, progress=False, describe=False)
-        fast = {r.id: r.row for r in run_fast_tier([FastJob(c.id, c.main_smiles, c.role, c.n_electrons)
+        fast = {r.id: r.row for r in run_fast_tier([FastJob.of(c)
                                                      for c in cands], settings, store, workers=workers)}
     rows = []
     for o in full:
@@ -100,15 +100,20 @@ def main() -> int:
     ap.add_argument("--workers", type=int, default=2)
     ap.add_argument("--reference-count", type=int, default=20)
     ap.add_argument("--skip-invented", action="store_true")
+    ap.add_argument("--store", type=Path, default=None,
+                    help="folder for the stores, kept between runs (a rerun computes only what changed)")
     args = ap.parse_args()
+    if args.store:
+        args.store.mkdir(parents=True, exist_ok=True)
     settings = ComputeSettings()
     print(f"load average at start: {os.getloadavg()[0]:.2f} (1 min), {os.cpu_count()} cores", flush=True)
     lines = []
     if not args.skip_invented:
         invented, _ = read_candidates(HERE / "invented_candidates.csv", settings)
-        lines += compare(f"invented set ({len(invented)} molecules)", invented, settings, args.workers)
+        lines += compare(f"invented set ({len(invented)} molecules)", invented, settings, args.workers, args.store)
     published = reference_candidates(settings, args.reference_count)
-    lines += compare(f"published subset ({len(published)} molecules)", published, settings, args.workers)
+    lines += compare(f"published subset ({len(published)} molecules)", published, settings, args.workers,
+                     args.store)
     print("\n".join(lines))
     print(f"load average at end: {os.getloadavg()[0]:.2f} (1 min)")
     return 0

@@ -71,7 +71,7 @@ def fast_tier_end_to_end(csv: Path, out: Path, store: Path, settings: ComputeSet
 
     t0 = time.perf_counter()
     cands, _ = read_candidates(csv, settings)
-    jobs = [FastJob(c.id, c.main_smiles, c.role, c.n_electrons) for c in cands]
+    jobs = [FastJob.of(c) for c in cands]
     from redoxfront.compute.funnel import FunnelSettings
 
     fs = FunnelSettings()  # the funnel's defaults: its proxy decides one or two single points

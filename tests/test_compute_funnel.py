@@ -11,7 +11,11 @@ from redoxfront.campaign import ComputeSettings, ConformerSettings, load_campaig
 from redoxfront.candidates.structures import parse_candidate
 from redoxfront.compute.fast_tier import (
     FAST_ENTRY_PREFIX,
+    FAST_GAP,
+    FAST_HOMO,
+    FAST_LUMO,
     FAST_STATUS,
+    STRUCTURE_COLUMNS,
     FastJob,
     fast_tier_hash,
     fast_vertical_column,
@@ -73,7 +77,7 @@ def test_fast_tier_vertical_potential_lies_above_the_adiabatic_one_and_is_stored
     settings = ComputeSettings(conformers=QUICK, workers=1)
     cands = [parse_candidate({"id": i, "smiles": s}, n, settings)
              for n, (i, s) in enumerate([("dmb", "COc1ccc(OC)cc1"), ("xyl", "Cc1ccc(C)cc1")])]
-    jobs = [FastJob(c.id, c.main_smiles, c.role, c.n_electrons) for c in cands]
+    jobs = [FastJob.of(c) for c in cands]
     store = tmp_path / "s.sqlite"
     first = {r.id: r for r in run_fast_tier(jobs, settings, str(store))}
     full, _ = compute_candidates(cands, settings, store, workers=1, progress=False, describe=False)
@@ -86,6 +90,14 @@ def test_fast_tier_vertical_potential_lies_above_the_adiabatic_one_and_is_stored
         # the gap is the cation's relaxation energy, a few tenths of an eV for such arenes (from memory)
         gap = fast[col] - o.row[C.potential_uncalibrated("fc")]
         assert 0.0 < gap < 0.8
+    dmb = first["dmb"].row
+    # IUPAC 2021 standard atomic weights: C8H10O2 = 138.166 g/mol; 10 heavy atoms; RDKit's strict rotatable
+    # bonds: the two aryl-O bonds (O-CH3 ends in a terminal methyl); TPSA: two ether oxygens x 9.23 A^2
+    # (Ertl, Rohde & Selzer, J. Med. Chem. 2000, 43, 3714, Table 1)
+    assert dmb[C.MOLAR_MASS] == pytest.approx(138.166, abs=0.01)
+    assert (dmb[C.HEAVY_ATOMS], dmb[C.ROTATABLE_BONDS]) == (10, 2)
+    assert dmb[C.TPSA] == pytest.approx(18.46, abs=0.01)
+    assert dmb[FAST_GAP] == pytest.approx(dmb[FAST_LUMO] - dmb[FAST_HOMO]) and dmb[FAST_GAP] > 3.0
     with Store(store) as s:  # two single points per molecule, under the fast tier's own hash
         assert s.count(fast_tier_hash(settings)) == 4
         assert s.get("COc1ccc(OC)cc1", FAST_ENTRY_PREFIX + "charge=+1;unpaired=1", fast_tier_hash(settings))
@@ -116,8 +128,9 @@ def test_funnel_computes_the_sample_and_the_selection_and_labels_both_tiers(tmp_
     assert (rep.candidates, rep.fast_ok, rep.sampled) == (8, 8, 3)
     fast = pd.read_csv(folder / "results" / "fast_tier.csv")
     assert len(fast) == 8 and list(fast["id"]) == [f"m{i}" for i in range(8)]  # input order
-    for name in fast.columns:  # every number says its tier
-        assert name in ("id", "canonical_smiles", "role", SELECTION_COLUMN) or name.startswith(("fast_tier_", "full_tier_"))
+    for name in fast.columns:  # every number says its tier, or comes from the structure graph (no tier)
+        assert name in ("id", "canonical_smiles", "role", SELECTION_COLUMN, *STRUCTURE_COLUMNS) or name.startswith(
+            ("fast_tier_", "full_tier_"))
     chosen = fast[SELECTION_COLUMN] != "not selected"
     table = pd.read_csv(folder / "results" / "descriptors.csv")
     assert sorted(table["id"]) == sorted(fast.loc[chosen, "id"])  # the full tier ran on exactly these

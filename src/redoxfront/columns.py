@@ -15,6 +15,13 @@ ROLE = "role"
 N_ELECTRONS = "n_electrons"
 MOLAR_MASS = "molar_mass_g_per_mol"
 """Molar mass of the discharged salt or molecule including counterions, g/mol."""
+HEAVY_ATOMS = "heavy_atoms"
+"""Atoms other than hydrogen in the charge carrier (from the structure graph)."""
+ROTATABLE_BONDS = "rotatable_bonds"
+"""Rotatable bonds of the charge carrier, RDKit's strict definition (from the structure graph)."""
+TPSA = "tpsa_angstrom2"
+"""Topological polar surface area of the charge carrier, Angstrom^2 (Ertl, Rohde & Selzer,
+J. Med. Chem. 2000, 43, 3714; from the structure graph)."""
 
 
 def potential_uncalibrated(ref: str, step: int | None = None) -> str:
@@ -206,7 +213,7 @@ MODEL_SET = "model_set"
 # ---- bookkeeping columns of the descriptor table (not descriptors) ----------------
 BOOKKEEPING_COLUMNS: tuple[str, ...] = (
     ID, SMILES, CANONICAL_SMILES, STATUS, ROLE, N_ELECTRONS, MOLAR_MASS, "counterions",
-    "counterion_note", "heavy_atoms", "charge_discharged", "charge_charged",
+    "counterion_note", HEAVY_ATOMS, "charge_discharged", "charge_charged",
     "multiplicity_discharged", "multiplicity_charged", "conformers_embedded",
     "conformers_refined", "gradient_calls", "optimisations_converged", "wall_time_s",
     "engine_time_s", "from_store", "descriptor_notes", SOLUBILITY, MEASURED, CALIBRATION_STATUS,

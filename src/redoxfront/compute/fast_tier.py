@@ -31,6 +31,7 @@ import time
 from dataclasses import dataclass
 from typing import Any, Iterable, Iterator, Sequence
 
+from redoxfront import columns as C
 from redoxfront.campaign import ComputeSettings
 from redoxfront.errors import EngineError, InputError
 
@@ -45,6 +46,10 @@ FAST_STATUS = "fast_tier_status"
 FAST_HOMO = "fast_tier_homo_discharged_ev"
 FAST_LUMO = "fast_tier_lumo_discharged_ev"
 FAST_SECONDS = "fast_tier_wall_time_s"
+STRUCTURE_COLUMNS = (C.MOLAR_MASS, C.HEAVY_ATOMS, C.ROTATABLE_BONDS, C.TPSA)
+"""The cheap descriptors: from the structure graph, so the same in both tiers (no tier in their names)."""
+FAST_GAP = "fast_tier_homo_lumo_gap_ev"
+"""LUMO - HOMO of the discharged state at the force-field geometry, eV."""
 FAST_ORBITAL_PROXY = "fast_tier_orbital_proxy_ev"
 """-HOMO (catholyte) or -LUMO (anolyte) of the discharged state at the force-field geometry, eV."""
 FORCE_FIELD_ITERATIONS = 100
@@ -76,6 +81,14 @@ class FastJob:
     """Canonical SMILES of the charge carrier (the candidate's main fragment)."""
     role: str
     n_electrons: int
+    molar_mass_g_per_mol: float = float("nan")
+    """Of the candidate as given, counterions included (the reader's value), g/mol."""
+
+    @classmethod
+    def of(cls, candidate: Any) -> "FastJob":
+        """The job of a :class:`~redoxfront.candidates.structures.Candidate`."""
+        return cls(candidate.id, candidate.main_smiles, candidate.role, candidate.n_electrons,
+                   candidate.molar_mass_g_per_mol)
 
 
 @dataclass(frozen=True)
@@ -149,6 +162,7 @@ def fast_candidate(job: FastJob, settings: ComputeSettings,
     """
     import numpy as np
     from rdkit import Chem
+    from rdkit.Chem import rdMolDescriptors
 
     from redoxfront.candidates.structures import redox_states
     from redoxfront.engine.potentials import potential_v, reduction_free_energy_ev
@@ -167,6 +181,13 @@ def fast_candidate(job: FastJob, settings: ComputeSettings,
     stored = stored or {}
     try:
         mol = Chem.MolFromSmiles(job.smiles)
+        if mol is None:
+            raise InputError("RDKit cannot read the SMILES", field="smiles")
+        # the cheap descriptors, from the structure graph (the same in both tiers)
+        row[C.MOLAR_MASS] = round(job.molar_mass_g_per_mol, 3)
+        row[C.HEAVY_ATOMS] = mol.GetNumHeavyAtoms()
+        row[C.ROTATABLE_BONDS] = rdMolDescriptors.CalcNumRotatableBonds(mol)
+        row[C.TPSA] = round(rdMolDescriptors.CalcTPSA(mol), 2)
         first, second = redox_states(Chem.AddHs(mol), job.role, job.n_electrons)[:2]
         wanted = (first, second) if points == "both" else (first,)
         found_points = {}
@@ -197,6 +218,7 @@ def fast_candidate(job: FastJob, settings: ComputeSettings,
             user_reference_v_vs_fc=settings.user_reference_v_vs_fc)
     row[FAST_HOMO] = found_points[first.name]["homo_eh"] * HARTREE_EV
     row[FAST_LUMO] = found_points[first.name]["lumo_eh"] * HARTREE_EV
+    row[FAST_GAP] = row[FAST_LUMO] - row[FAST_HOMO]
     row[FAST_ORBITAL_PROXY] = -(row[FAST_HOMO] if job.role == "catholyte" else row[FAST_LUMO])
     row[FAST_SECONDS] = round(time.perf_counter() - t0, 4)
     return FastResult(job.id, job.smiles, row, payloads, engine.stats.seconds, time.perf_counter() - t0)
@@ -263,7 +285,7 @@ def run_fast_tier(
 
 
 __all__ = [
-    "ENGINE_ACCURACY", "ENGINE_GUESS", "FAST_ENTRY_PREFIX", "FAST_HOMO", "FORCE_FIELD_ITERATIONS", "FAST_ORBITAL_PROXY", "POINTS", "FAST_LUMO", "FAST_SECONDS", "FAST_STATUS", "FastJob", "FastResult",
+    "ENGINE_ACCURACY", "ENGINE_GUESS", "FAST_ENTRY_PREFIX", "FAST_GAP", "FAST_HOMO", "FORCE_FIELD_ITERATIONS", "FAST_ORBITAL_PROXY", "POINTS", "FAST_LUMO", "FAST_SECONDS", "FAST_STATUS", "FastJob", "FastResult", "STRUCTURE_COLUMNS",
     "TIER_FAST", "TIER_FULL", "chunked", "fast_candidate", "fast_tier_hash", "fast_vertical_column",
     "force_field_geometry", "run_fast_tier",
 ]

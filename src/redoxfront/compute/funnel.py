@@ -198,7 +198,7 @@ def funnel_campaign(campaign: Campaign, *, workers: int | None = None, dask_addr
     workers = settings.workers if workers is None else workers
     path = campaign.path(campaign.inputs.candidates, "[inputs] candidates")
     cands, _ = read_candidates(path, settings)
-    jobs = [FastJob(c.id, c.main_smiles, c.role, c.n_electrons) for c in cands]
+    jobs = [FastJob.of(c) for c in cands]
     del cands  # the compute step reads the file again for the few it computes
     with campaign_lock(campaign.folder):
         rows = [r.row for r in run_fast_tier(jobs, settings, str(campaign.store_path), workers=workers,
