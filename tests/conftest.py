@@ -36,3 +36,15 @@ def first_screen_results(tmp_path_factory):
     folder = first_screen(tmp_path_factory.mktemp("screen") / "first-screen")
     run_campaign(folder, progress=False, echo=lambda _line: None)
     return folder
+
+
+@pytest.fixture(scope="session")
+def funnel_results(tmp_path_factory):
+    """A small library run through the funnel (fast tier, then the full tier), once."""
+    from report_campaigns import funnel_library
+
+    from redoxfront.pipeline import run_campaign
+
+    folder = funnel_library(tmp_path_factory.mktemp("funnel") / "funnel-library")
+    run_campaign(folder, progress=False, echo=lambda _line: None)
+    return folder

@@ -47,3 +47,26 @@ def first_screen(folder: Path) -> Path:
         "[report]\nnote = 'Invented first screen: nothing here was measured.'\n",
         encoding="utf-8")
     return folder
+
+
+FUNNEL_SERIES = ["c1ccccc1C", "Cc1ccc(C)cc1", "COc1ccccc1", "COc1ccc(C)cc1", "COc1ccc(OC)cc1", "Oc1ccccc1",
+                 "Cc1cc(C)cc(C)c1", "COc1ccccc1OC", "CSc1ccccc1", "Cc1ccc(O)cc1"]
+"""Small catholytes for a library that goes through the funnel (invented)."""
+
+
+def funnel_library(folder: Path) -> Path:
+    """A library of ten small catholytes above a lowered ``[funnel] threshold``: a fast tier for
+    all, the full tier for a calibration sample of 3 and the best 25 %; one left-out candidate
+    (or ranked one) carries the hostile id. Ranked on cell voltage and molar mass (invented)."""
+    (folder / "inputs").mkdir(parents=True)
+    ids = [f"lib{i:02d}" for i in range(len(FUNNEL_SERIES) - 1)] + [HOSTILE_ID]
+    pd.DataFrame({"id": ids, "smiles": FUNNEL_SERIES}).to_csv(folder / "inputs" / "candidates.csv", index=False)
+    (folder / "campaign.toml").write_text(
+        'name = "funnel library (invented)"\n'
+        "[compute]\nworkers = 1\n[compute.conformers]\nn_generate = 2\nrefine_lowest = 1\n"
+        "[funnel]\nthreshold = 5\ncalibration_sample = 3\nfraction = 0.25\n"
+        "[cell]\ncounter = 'potential'\ncounter_potential_v = -1.8\n"
+        "[ranking]\nobjectives = ['cell_voltage', 'molar_mass']\nn_draws = 200\nn_suggestions = 2\n"
+        "[report]\nnote = 'Invented library: nothing here was measured.'\n",
+        encoding="utf-8")
+    return folder

@@ -108,7 +108,7 @@ def test_figures_never_import_their_step() -> None:
 def test_every_figure_module_uses_the_shared_style() -> None:
     graph = import_graph()
     figure_modules = [m for m in graph if m.endswith(".figures")]
-    assert len(figure_modules) == 3
+    assert len(figure_modules) == 4  # fade, statistics, ranking, report (the funnel's tier line)
     for m in figure_modules:
         assert "redoxfront.figure_style" in graph[m], m
 

@@ -63,7 +63,7 @@ def _no_dialog(browser) -> bool:
     return False
 
 
-@pytest.mark.parametrize("campaign", ["demo_results", "first_screen_results"])
+@pytest.mark.parametrize("campaign", ["demo_results", "first_screen_results", "funnel_results"])
 def test_report_reads_in_a_real_browser(browser, campaign, request):
     folder = request.getfixturevalue(campaign)
     page = _open(browser, folder)
@@ -113,7 +113,7 @@ def test_clicking_a_header_sorts_the_rows(browser, demo_results):
     assert ids() != before and sorted(ids()) == sorted(before)  # same rows, new order
 
 
-@pytest.mark.parametrize("campaign", ["demo_results", "first_screen_results"])
+@pytest.mark.parametrize("campaign", ["demo_results", "first_screen_results", "funnel_results"])
 def test_hostile_id_is_text_and_never_runs(browser, campaign, request):
     page = _open(browser, request.getfixturevalue(campaign))
     assert _no_dialog(page)  # no alert fired while the page loaded
@@ -126,6 +126,30 @@ def test_hostile_id_is_text_and_never_runs(browser, campaign, request):
     page.find_elements("css selector", "#candidate-table thead th button")[1].click()
     assert _no_dialog(page)
     assert page.execute_script("return document.querySelectorAll('img[src=\"x\"]').length;") == 0
+
+
+def test_first_pass_section_shows_the_tier_figure_and_the_left_out_candidates(browser, funnel_results):
+    from redoxfront.compute.funnel import SELECTION_COLUMN
+    from redoxfront.outputs import read_table
+
+    page = _open(browser, funnel_results)
+    assert [e for e in page.get_log("browser") if e["level"] == "SEVERE"] == []
+    fig = page.execute_script(
+        "const s = document.querySelector('#first-pass figure svg').getBoundingClientRect();"
+        "return [s.width, s.height, document.querySelector('#first-pass figcaption').textContent];")
+    # a figure a reader can see: laid out with a size inside a 1400-px window
+    assert 250 < fig[0] <= 1400 and fig[1] > 200 and fig[2].startswith("Full tier against fast tier")
+    shown = page.execute_script(
+        "return Array.from(document.querySelectorAll('#first-pass table.left-out tbody tr'))"
+        ".map(r => [r.cells[0].textContent, r.cells[1].textContent, r.getBoundingClientRect().height]);")
+    fast = read_table(funnel_results / "results" / "fast_tier.csv", remedy="rerun")
+    left = set(fast.loc[fast[SELECTION_COLUMN] == "not selected", "id"])
+    # common practice, no source: every row listed is one the rule left out, and it reads as a number
+    assert len(shown) == min(10, len(left)) and {r[0] for r in shown} <= left
+    assert all(float(r[1]) > 0 and r[2] > 10 for r in shown)
+    headers = page.execute_script(
+        "return Array.from(document.querySelectorAll('#first-pass table.left-out thead th')).map(t => t.textContent);")
+    assert any("fast tier estimate" in h for h in headers)
 
 
 def test_printed_table_fits_an_a4_landscape_page(browser, demo_results):

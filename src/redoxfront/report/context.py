@@ -23,6 +23,7 @@ from redoxfront.figure_style import svg_for_html
 from redoxfront.outputs import read_json_file, read_table, regenerate_hint
 from redoxfront.report import formatting as F
 from redoxfront.report import narrative
+from redoxfront.report.first_pass import FIGURE_STEM, first_pass_section
 from redoxfront.report.safety import AQUEOUS_SAFETY_NOTES, SAFETY_NOTES
 from redoxfront.report.structures import structure_svg
 
@@ -182,6 +183,22 @@ def pick_cards(table: pd.DataFrame | None, objectives: list[str], label: str,
     return cards, basis
 
 
+POTENTIAL_HEADERS = ("Potential", "Reduction potential", "Oxidation potential")
+POTENTIAL_FACTS = ("Potential", "Reduction", "Oxidation")
+
+
+def full_tier_labels(cards: list[dict[str, Any]], tab: dict[str, Any]) -> None:
+    """After a funnel the page shows numbers of two tiers: the potentials of the pick cards and
+    of the candidate table (all full-tier rows) say 'full tier' (in place)."""
+    for h in tab.get("headers", []):
+        if h["text"] in POTENTIAL_HEADERS:
+            h["text"] += " (full tier)"
+    for card in cards:
+        for f in card["facts"]:
+            if f["label"] in POTENTIAL_FACTS or f["label"].endswith("potential"):
+                f["interval"] = " · ".join(x for x in (f["interval"], "full tier") if x)
+
+
 def model_section(res: Path, ref: str, label: str) -> dict[str, Any]:
     """Rate model (equation, statistics, coefficients, figures), calibration and fade fits."""
     model = read_json(res / "model.json")
@@ -299,6 +316,16 @@ def gather(campaign: Campaign, title: str, note: str) -> dict[str, Any]:
     hide = NO_MODEL_NOTES if models["model"] is None else ()
     cards, card_basis = pick_cards(table if ranked else None, objectives, label, hide)
     tab = table_section(table, label, res, hide)
+    first_pass = first_pass_section(res, ref, label)
+    if first_pass is not None:
+        full_tier_labels(cards, tab)
+        if first_pass["figure"]:
+            first_pass["figure"] = figure(
+                res, FIGURE_STEM, "Full tier against fast tier",
+                "Each coloured point is a candidate computed at both tiers (filled: calibration sample; open: "
+                "selected by the rule or went on anyway); the line is the tier line fitted on them and the band "
+                "its 95 % prediction interval; grey points are the candidates the rule left out, at their fast "
+                "tier estimate. Potentials uncalibrated (not against measurements).")
     return {
         "title": title or campaign.name,
         "campaign": campaign.name,
@@ -306,7 +333,8 @@ def gather(campaign: Campaign, title: str, note: str) -> dict[str, Any]:
         "date": _dt.datetime.now().strftime("%Y-%m-%d %H:%M"),
         "banner": note,
         "reference": label,
-        "summary": narrative.summary_paragraphs(desc, tab, cards, card_basis, models, summary, ranked, campaign),
+        "summary": narrative.summary_paragraphs(desc, tab, cards, card_basis, models, summary, ranked, campaign,
+                                                first_pass),
         "picks": {"cards": cards, "basis": card_basis, "ranked": ranked,
                   "why_none": narrative.why_no_picks(campaign, ranked, res)},
         "safety": list(SAFETY_NOTES) + (list(AQUEOUS_SAFETY_NOTES) if campaign.compute.solvent == "water" else []),
@@ -316,7 +344,8 @@ def gather(campaign: Campaign, title: str, note: str) -> dict[str, Any]:
         "pourbaix": pourbaix_section(res, summary, desc, label) if ranked and summary.get("aqueous") else None,
         "table": tab,
         "table_source": source,
+        "first_pass": first_pass,
         **models,
-        "limitations": list(narrative.LIMITATIONS),
+        "limitations": list(narrative.LIMITATIONS) + ([narrative.FUNNEL_LIMITATION] if first_pass else []),
         "files": narrative.result_files(res),
     }

@@ -52,8 +52,18 @@ LIMITATIONS: tuple[str, ...] = (
     "is known about the front. They are not a guarantee of performance.",
 )
 
+FUNNEL_LIMITATION: str = (
+    "Candidates the funnel left out were judged by the fast tier alone: one force-field conformer and "
+    "a single-point proxy, mapped onto the full tier by a line fitted on this campaign's own full-tier "
+    "results. Their estimates carry the line's 95 % prediction interval; a flexible molecule whose "
+    "lowest conformer differs from the force-field one can be misjudged. They are not ranked.")
+"""Said under Limitations when the funnel ran."""
+
 RESULT_FILES: tuple[tuple[str, str], ...] = (
-    ("descriptors.csv", "every candidate: raw potentials, energies, descriptors, status"),
+    ("fast_tier.csv", "first pass: every candidate's fast-tier values, its estimate of the full-tier potential "
+                      "with the 95 % interval, and why it did or did not go to the full tier"),
+    ("fast_tier_summary.json", "first pass: the funnel's rule, counts and tier line of each role"),
+    ("descriptors.csv", "every candidate computed at the full tier: raw potentials, energies, descriptors, status"),
     ("geometries.sdf", "lowest optimised conformer of every redox state (open in a molecular viewer)"),
     ("input_problems.csv", "input rows that were rejected, with row, field and reason"),
     ("rates.csv", "rate constants fitted from the cycling and decay files"),
@@ -428,16 +438,26 @@ def why_no_picks(campaign: Campaign, ranked: bool, res: Path) -> str:
 
 def summary_paragraphs(desc: pd.DataFrame | None, table: Mapping[str, Any], cards: list[dict[str, Any]],
                        card_basis: str, models: Mapping[str, Any], summary: Mapping[str, Any],
-                       ranked: bool, campaign: Campaign) -> list[str]:
+                       ranked: bool, campaign: Campaign,
+                       first_pass: Mapping[str, Any] | None = None) -> list[str]:
     """The summary, written from the results: counts, what the model learnt from, the
-    top picks in a sentence each, and what not to over-read."""
+    top picks in a sentence each, and what not to over-read. ``first_pass``: the funnel's
+    section (:mod:`redoxfront.report.first_pass`) when it ran: the counts then say both tiers."""
     out = []
     n_all = 0 if desc is None else len(desc)
     n_ok = int(desc[C.STATUS].astype(str).eq("ok").sum()) if desc is not None and C.STATUS in desc else 0
     rejected = len(table.get("problems", []))
-    first = (f"{n_all + rejected} candidate rows read; {n_ok} computed"
-             + (f", {n_all - n_ok} failed" if n_all - n_ok else "")
-             + (f", {rejected} rejected at input" if rejected else "") + ".")
+    if first_pass:
+        first = (f"{first_pass['n_candidates'] + rejected} candidate rows read; {first_pass['n_fast_ok']} got the "
+                 f"fast tier (first pass); {first_pass['n_full']} went on to the full tier, of which {n_ok} computed"
+                 + (f", {n_all - n_ok} failed" if n_all - n_ok else "")
+                 + (f"; {rejected} rejected at input" if rejected else "")
+                 + f". The other {first_pass['n_left_out']} have only a fast tier estimate and are not ranked "
+                 "(see First pass); every number below is from the full tier unless it says otherwise.")
+    else:
+        first = (f"{n_all + rejected} candidate rows read; {n_ok} computed"
+                 + (f", {n_all - n_ok} failed" if n_all - n_ok else "")
+                 + (f", {rejected} rejected at input" if rejected else "") + ".")
     cal = models.get("calibration")
     if cal:
         first += (f" Potentials calibrated against {cal['n_measured']} measured potentials "
