@@ -216,3 +216,42 @@ def test_several_places_mean_averages_each_place() -> None:
         def col(site: str) -> float:
             return row[columns.descriptor_column(q, site, state, "mean")]
         assert col("methoxy") == pytest.approx(0.5 * (col("place_a") + col("place_b")), rel=1e-9, abs=1e-12), q
+
+
+def test_site_surface_is_the_atoms_share_of_the_whole_molecule_surface() -> None:
+    from redoxfront.descriptors.sterimol import vdw_radii
+    from redoxfront.descriptors.surface import atom_sasa
+
+    mol, cs = _states()
+    row = descriptors_for_candidate(mol, cs, {"tbu": SITES["tbu"]}, None)
+    centre = mol.GetSubstructMatch(Chem.MolFromSmarts("c-C(C)(C)C"))[0]
+    whole = atom_sasa(cs.states["charged"].conformers[0].positions_angstrom, vdw_radii(mol, "bondi"))
+    # Shrake & Rupley, J. Mol. Biol. 1973, 79, 351: the site's area is its atom's term of the
+    # molecule's surface (one charged conformer in the window), the same surface the spin
+    # exposure sums: sum over atoms of spin x area
+    assert row["sasa_angstrom2_tbu_mean"] == pytest.approx(whole[centre], abs=1e-9)
+    spin = cs.states["charged"].conformers[0].spin_density
+    assert row["spin_exposure_angstrom2_mean"] == pytest.approx(float(spin @ whole), abs=1e-9)
+
+
+def test_an_element_without_a_radius_empties_the_steric_values_with_a_reason() -> None:
+    mol = Chem.AddHs(Chem.MolFromSmiles("C[Ge](C)(C)c1ccc(C(C)(C)C)cc1"))
+    AllChem.EmbedMolecule(mol, randomSeed=3)
+    x = mol.GetConformer().GetPositions()
+    n = mol.GetNumAtoms()
+    spin = np.zeros(n)
+    spin[5] = 1.0
+
+    def state(name: str, charge: int, uhf: int) -> StateResult:
+        return StateResult(name, charge, uhf, (ConformerResult(x, -50.0, np.zeros(n), -0.4, -0.1, np.zeros(3), 5,
+                                                                True, 0, {}, spin if uhf else None),))
+
+    cs = CandidateStates("ge", "C[Ge](C)(C)c1ccc(C(C)(C)C)cc1",
+                         {"discharged": state("discharged", 0, 0), "charged": state("charged", 1, 1)})
+    row = descriptors_for_candidate(mol, cs, {"tbu": SITES["tbu"]}, None)
+    # common practice, no source: an element outside the radii table (germanium here) gets a reason
+    # and empty steric values, never a guessed radius
+    assert "no van der Waals radius for element Ge" in row["descriptor_notes"]
+    assert math.isnan(row["buried_volume_percent_tbu_mean"]) and math.isnan(row["sterimol_b5_angstrom_tbu_mean"])
+    assert math.isnan(row["spin_exposure_angstrom2_mean"])
+    assert row["spin_density_max_carbon_mean"] == pytest.approx(1.0)  # needs no radius

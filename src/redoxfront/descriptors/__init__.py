@@ -297,14 +297,14 @@ def descriptors_for_candidate(
     for s in present:
         row.values[columns.conformers_used_column(s)] = float(len(ens[s].used))
 
-    try:
-        r_bondi: np.ndarray | RedoxfrontError = vdw_radii(mol_with_hs, "bondi")
-    except RedoxfrontError as exc:
-        r_bondi = exc
     rad = _radical_state(states)
     spins_stored = rad is not None and all(rad.conformers[k].spin_density is not None for k in ens[rad.state].used)
-    surfaces = None if isinstance(r_bondi, RedoxfrontError) else _Surfaces(
-        states, ds, r_bondi, rad.state if spins_stored and rad is not None else None)
+    try:  # one set of Bondi radii and one surface cache for the steric and the spin descriptors
+        surfaces: _Surfaces | None = _Surfaces(states, ds, vdw_radii(mol_with_hs, "bondi"),
+                                               rad.state if spins_stored and rad is not None else None)
+    except RedoxfrontError as exc:  # an element without a radius: steric and exposure values stay empty
+        row.note(str(exc))
+        surfaces = None
     _steric(row, mol_with_hs, states, ds, sites, matches, ens, surfaces)
     _electronic(row, mol_with_hs, states, ds, matches, ens, present, surfaces)
     row.values[columns.DESCRIPTOR_NOTES] = "; ".join(row.notes)
@@ -325,15 +325,11 @@ def _steric(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSetting
         row.note(f"no {geo_state} conformers; steric descriptors empty")
         return
     w = ens[geo_state]
-    try:
-        if surfaces is None:  # no Bondi radius for an element: say which
-            vdw_radii(mol, "bondi")
-        assert surfaces is not None
-        r_bondi = surfaces.radii
-        r_cpk = vdw_radii(mol, "cpk") if "cpk" in (ds.sterimol_radii, ds.clearance_radii) else r_bondi
-    except RedoxfrontError as exc:
-        row.note(str(exc))
+    if surfaces is None:  # no radius for an element (noted)
         return
+    r_bondi = surfaces.radii
+    # the CPK set covers the same elements as the Bondi set, so it cannot fail here
+    r_cpk = vdw_radii(mol, "cpk") if "cpk" in (ds.sterimol_radii, ds.clearance_radii) else r_bondi
     r_sterimol = r_cpk if ds.sterimol_radii == "cpk" else r_bondi
     r_clear = r_cpk if ds.clearance_radii == "cpk" else r_bondi
     r_bv = r_bondi * ds.buried_volume_radii_scale
@@ -484,11 +480,6 @@ def _electronic(row: _Row, mol: Chem.Mol, cs: CandidateStates, ds: DescriptorSet
                 "in [compute] to get them"
             )
         else:
-            if surfaces is None:  # no radii for an element: the exposure stays empty
-                try:
-                    vdw_radii(mol, "bondi")
-                except RedoxfrontError as exc:
-                    row.note(str(exc))
             n = len(rad.conformers)
             max_c = np.full(n, np.nan)
             exposure = np.full(n, np.nan)
