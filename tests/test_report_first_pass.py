@@ -83,6 +83,7 @@ def test_after_a_funnel_every_potential_says_its_tier(funnel_results):
     cand = _section(html, "candidates")
     assert "Potential (full tier)" in cand and "Every row is a full-tier result" in cand
     assert f"{n_left} candidates were left out by the funnel's rule" in cand
+    assert f"(full-tier results only; the {n_left} left out after the fast tier" in _section(html, "front")
     picks = _section(html, "picks")
     assert picks.count("full tier") >= 1  # each card's potential says its tier
     assert "fast_tier.csv" in _section(html, "files")
@@ -92,3 +93,41 @@ def test_after_a_funnel_every_potential_says_its_tier(funnel_results):
 def test_no_first_pass_section_without_a_funnel(first_screen_results):
     html = (first_screen_results / "results" / "report.html").read_text(encoding="utf-8")
     assert 'id="first-pass"' not in html and "(full tier)" not in html  # one tier: nothing to tell apart
+
+
+def test_left_out_order_and_figure_panels_for_both_roles(tmp_path):
+    import pandas as pd
+
+    from redoxfront.report.first_pass import first_pass_section
+
+    res = tmp_path / "results"
+    res.mkdir()
+    rows = []
+    for role, sign in (("catholyte", 1.0), ("anolyte", -1.0)):
+        for i in range(8):
+            fast_value = 5.0 + 0.1 * i
+            est = sign * (0.2 + 0.5 * fast_value)
+            chosen = "calibration sample" if i in (0, 3, 7) else "not selected"
+            rows.append({"id": f"{role[0]}{i}", "role": role, FAST_STATUS: "ok", FAST_ORBITAL_PROXY: fast_value,
+                         estimate_column("fc"): est, estimate_column("fc", "low"): est - 0.1,
+                         estimate_column("fc", "high"): est + 0.1, SELECTION_COLUMN: chosen,
+                         full_column("fc"): est + 0.01 if chosen != "not selected" else np.nan})
+    rows.append({"id": "bp", "role": "bipolar", FAST_STATUS: "not in the fast tier: bipolar rows go to the full tier",
+                 SELECTION_COLUMN: "full tier: not in the fast tier: bipolar rows go to the full tier"})
+    pd.DataFrame(rows).to_csv(res / "fast_tier.csv", index=False)
+    (res / "fast_tier_summary.json").write_text(json.dumps({
+        "rule": "top_fraction", "proxy": "orbital", "proxy_column": FAST_ORBITAL_PROXY, "fraction": 0.2,
+        "tier_lines": {"catholyte": {"fitted": True, "intercept_v": 0.2, "slope": 0.5, "n": 3, "residual_sd_v": 0.01},
+                       "anolyte": {"fitted": False, "reason": "fewer than 3 candidates with both tiers"}}}))
+    sec = first_pass_section(res, "fc", "Fc+/Fc")
+    assert (sec["n_candidates"], sec["n_fast_ok"], sec["n_not_in_fast"], sec["n_full"], sec["n_left_out"]) == (17, 16, 1, 7, 10)
+    assert [r["n"] for r in sec["reasons"]] == [6, 1] and sec["reasons"][1]["reason"].startswith("went on anyway")
+    left = {g["role"]: [r["id"] for r in g["rows"]] for g in sec["left_out"]}
+    # docs/funnel.md, the rule: the best catholytes have the highest potentials, the best
+    # anolytes the lowest (the wider cell window); left-out lists follow the same order
+    assert left["catholyte"] == ["c6", "c5", "c4", "c2", "c1"]
+    assert left["anolyte"] == ["a6", "a5", "a4", "a2", "a1"]
+    assert [ln["fitted"] for ln in sec["lines"]] == ["yes", ""] and "fewer than 3" in sec["lines"][1]["reason"]
+    assert sec["lines"][0]["equation"] == "E(full tier) = 0.200 + 0.500 × fast-tier value"
+    svg = (res / "figures" / "fast_tier_line.svg").read_text()
+    assert "anolytes" in svg and "catholytes" in svg  # one panel per role, text kept as text
