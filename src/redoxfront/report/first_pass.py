@@ -160,7 +160,7 @@ def first_pass_section(res: Path, ref: str, ref_label: str) -> dict[str, Any] | 
         "n_fast_failed": int(failed.sum()),
         "n_not_in_fast": int(len(fast) - n_fast_ok - failed.sum()),
         "rule": rule,
-        "rule_words": RULE_WORDS.get(rule, rule).format(pct=pct),
+        "rule_words": RULE_WORDS[rule].format(pct=pct) if rule in RULE_WORDS else f"the rule '{rule}'",
         "proxy_words": proxy_text,
         "x_unit": x_unit,
         "n_full": int((selection != NOT_SELECTED).sum()),
