@@ -237,14 +237,21 @@ def choose_training_command(campaign: Path, k: int, made: tuple[str, ...], skip:
 @main.command("rank")
 @CAMPAIGN_ARG
 @click.option("--quiet", is_flag=True, help="No progress bar.")
+@click.option("--timings", is_flag=True, help="Print how long each phase took (s) to stderr.")
 @friendly_errors
-def rank_command(campaign: Path, quiet: bool) -> None:
+def rank_command(campaign: Path, quiet: bool, timings: bool) -> None:
     """Cell metrics, trade-off front, probability on the front and next experiments."""
+    import time
+
+    start = time.perf_counter()
     from redoxfront import columns
     from redoxfront.campaign import load_campaign
     from redoxfront.ranking.step import rank_campaign
 
-    table = rank_campaign(load_campaign(campaign), progress=not quiet)
+    phases: dict[str, float] = {"imports and settings": 0.0}
+    camp = load_campaign(campaign)
+    phases["imports and settings"] = time.perf_counter() - start
+    table = rank_campaign(camp, progress=not quiet, timings=phases)
     ranked = table[columns.PARETO_RANK].notna()
     first = table[table[columns.PARETO_RANK] == 1]
     click.echo(f"{int(ranked.sum())} of {len(table)} candidates ranked; {len(first)} on the first front")
@@ -259,6 +266,10 @@ def rank_command(campaign: Path, quiet: bool) -> None:
     if (table[columns.POTENTIAL_BASIS] == "uncalibrated").any():
         click.echo("note: some potentials are uncalibrated (+-[cell] uncalibrated_uncertainty_v)", err=True)
     click.echo("written: results/ranking.csv, results/picks.csv, results/figures/front.svg")
+    if timings:
+        phases["total since the command began"] = time.perf_counter() - start
+        for phase, seconds in phases.items():
+            click.echo(f"timing: {phase}: {seconds:.3f} s", err=True)
 
 
 @main.command("run")

@@ -217,10 +217,16 @@ def ranking_objectives(campaign: "Campaign") -> tuple[str, ...]:
     return tuple(ranking_settings(campaign).objectives)
 
 
-def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFrame:
+def rank_campaign(campaign: "Campaign", *, progress: bool = True,
+                  timings: dict[str, float] | None = None) -> pd.DataFrame:
     """Rank a campaign's candidates: reads results/predictions.csv, writes
     results/ranking.csv, results/picks.csv, results/ranking_summary.json and the figures
-    under results/figures/; returns the ranked table."""
+    under results/figures/; returns the ranked table.
+
+    ``timings``: when given, filled with the wall time of each phase in seconds (reading,
+    cell metrics, ranking, writing tables, figures), in the order they ran.
+    """
+    clock = _PhaseClock(timings)
 
     from redoxfront.campaign import aqueous_settings, section_from_mapping
     from redoxfront.errors import InputError
@@ -256,6 +262,7 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
             extra = [c for c in desc.columns if c not in table.columns]
             if extra:
                 table = table.merge(desc[[col.ID, *extra]].drop_duplicates(col.ID), on=col.ID, how="left")
+    clock.lap("reading the tables")
     flag = truthy(table[col.MEASURED]) if col.MEASURED in table.columns else pd.Series(False, index=table.index)
     for target in (col.LOG10_K_FIRST, col.LOG10_K_SECOND):  # measured rates the model step carried
         if target in table.columns:
@@ -290,11 +297,14 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
     )
     window = metrics.attrs.get("window")
     metrics = symmetric_cell_metrics(metrics, cell_settings, campaign.compute.reference)
+    clock.lap("cell metrics")
     result = rank_table(metrics, settings, progress=progress)
+    clock.lap("ranking (fronts, probability, picks)")
     out_dir = campaign.results_dir
     out_dir.mkdir(parents=True, exist_ok=True)
     write_csv(result.table, out_dir / "ranking.csv")
     write_csv(result.picks, out_dir / "picks.csv")
+    clock.lap("writing ranking.csv and picks.csv")
     basis = result.table[col.POTENTIAL_BASIS].value_counts().to_dict()
     summary = {
         "objectives": list(result.objectives),
@@ -332,6 +342,7 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
 
             summary["partner"] = {k: v for k, v in partner_couple(cell_settings.counter_couple).items()}
     write_json(out_dir / "ranking_summary.json", summary)
+    clock.lap("summary")
     from redoxfront.ranking.figures import plot_front, plot_pairwise  # noqa: I001
 
     fig_dir = out_dir / "figures"
@@ -351,4 +362,22 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True) -> pd.DataFram
                       reference_label(campaign.compute.reference, campaign.compute.user_reference_name),
                       aqueous.ph, cell_settings.water_overpotential_v, lines0, fig_dir / "pourbaix_picks.svg",
                       aqueous.temperature_k)
+    clock.lap("figures")
     return result.table
+
+
+class _PhaseClock:
+    """Wall time of consecutive phases, written into a caller's dict (nothing when None)."""
+
+    def __init__(self, into: dict[str, float] | None) -> None:
+        import time
+
+        self._now = time.perf_counter
+        self._into = into
+        self._last = self._now()
+
+    def lap(self, phase: str) -> None:
+        now = self._now()
+        if self._into is not None:
+            self._into[phase] = self._into.get(phase, 0.0) + now - self._last
+        self._last = now
