@@ -58,3 +58,32 @@ def test_inline_svg_has_no_url_and_keeps_ids_as_text(tmp_path):
     html = svg_for_html(plot_front(t, ("cell_voltage", "molar_mass"), tmp_path / "f.svg").read_text(), id_prefix="f-")
     assert "http" not in html and "<?xml" not in html and "<img" not in html
     assert "knee: &lt;img src=x onerror=alert(1)&gt; $x$" in html  # escaped, dollars drawn as text
+
+
+def test_a_large_library_draws_its_grey_cloud_as_one_image_and_the_front_as_markers(tmp_path):
+    from redoxfront.ranking.figures import RASTER_ABOVE
+
+    rng = np.random.default_rng(8)
+    n = RASTER_ABOVE * 3
+    v = rng.normal(2.8, 0.3, n)
+    t = pd.DataFrame({
+        col.ID: [f"lib{i:05d}" for i in range(n)], col.CELL_VOLTAGE: v, col.CELL_VOLTAGE_LOW: v - 0.15,
+        col.CELL_VOLTAGE_HIGH: v + 0.15, col.MOLAR_MASS: rng.uniform(150, 600, n),
+        col.PARETO_RANK: 2, col.P_FRONT: 0.0, col.KNEE: False, col.PICK_ORDER: pd.array([pd.NA] * n, dtype="Int64"),
+        col.EXTRAPOLATING: rng.random(n) < 0.05, col.POTENTIAL_BASIS: "calibrated",
+    })
+    front = np.argsort(-v)[:5]  # five invented front members, the best of them the knee and pick 1
+    t.loc[front, col.PARETO_RANK] = 1
+    t.loc[front, col.P_FRONT] = 0.9
+    t.loc[front[0], col.KNEE] = True
+    t.loc[front[0], col.PICK_ORDER] = 1
+    svg = plot_front(t, ("cell_voltage", "molar_mass"), tmp_path / "front.svg").read_text()
+    # common practice, no source: a dense cloud goes in a raster layer, so one <image> instead of
+    # one <use> per grey point; the front's markers, the knee and the legend stay vector
+    assert svg.count("<image") >= 1
+    assert svg.count("<use ") < 200
+    assert f"knee: {t.loc[front[0], col.ID]}" in svg and "first front" in svg
+    assert "extrapolating (outside model domain or calibration range)" in svg
+    assert (tmp_path / "front.svg").stat().st_size < 1_000_000
+    pairs = plot_pairwise(t, ("cell_voltage", "molar_mass"), tmp_path / "pairs.svg").read_text()
+    assert pairs.count("<image") >= 1 and pairs.count("<use ") < 200

@@ -84,11 +84,89 @@ def write_json(path: str | Path, obj: Any, *, allow_nan: bool = True) -> Path:
 
 
 def write_csv(table: "pd.DataFrame", path: str | Path, **to_csv: Any) -> Path:
-    """Write a table as CSV (no index unless asked) atomically to ``path``."""
+    """Write a table as CSV (no index unless asked) atomically to ``path``.
+
+    With no other options the text is that of ``DataFrame.to_csv(index=False)`` (same
+    quoting, floats written by ``repr``: the shortest text that reads back to the same
+    float, so every value round-trips exactly; missing values as empty fields), made
+    column by column in row blocks, several times faster than pandas for wide float tables
+    and with bounded memory. Options, or a column type it does not know, go through
+    ``DataFrame.to_csv``.
+    """
     to_csv.setdefault("index", False)
     with replacing(path) as tmp:
-        table.to_csv(tmp, **to_csv)
+        if to_csv == {"index": False} and _plain_columns(table):
+            _write_plain_csv(table, tmp)
+        else:
+            table.to_csv(tmp, **to_csv)
     return Path(path)
+
+
+CSV_BLOCK_ROWS = 10_000
+"""Rows formatted at once by :func:`write_csv` (bounds the memory of the text being built)."""
+
+
+def _plain_columns(table: "pd.DataFrame") -> bool:
+    """True when every column is float, integer, boolean, nullable integer/boolean, or text
+    (object or string dtype), the column names are unique text and there are two or more
+    columns (a one-column CSV needs pandas' quoting of empty fields)."""
+    import pandas as pd
+
+    if table.shape[1] < 2 or not table.columns.is_unique:
+        return False
+    if not all(isinstance(c, str) for c in table.columns):
+        return False
+    for dtype in table.dtypes:
+        kind = getattr(dtype, "kind", "O")
+        if isinstance(dtype, pd.CategoricalDtype) or kind not in "fiubO":
+            if not (isinstance(dtype, pd.StringDtype) or pd.api.types.is_string_dtype(dtype)):
+                return False
+    return True
+
+
+def _quoted(text: str) -> str:
+    """One CSV field, quoted as ``csv.QUOTE_MINIMAL`` does (delimiter, quote or line break inside)."""
+    if "," in text or '"' in text or "\n" in text or "\r" in text:
+        return '"' + text.replace('"', '""') + '"'
+    return text
+
+
+def _column_texts(series: "pd.Series") -> list[str]:
+    """The CSV fields of one column, as ``DataFrame.to_csv`` writes them."""
+    import numpy as np
+
+    dtype = series.dtype
+    kind = getattr(dtype, "kind", "O")
+    if isinstance(dtype, np.dtype) and kind == "f":
+        values = series.to_numpy()
+        # float64: Python's repr (shortest round-trip text); narrower floats: numpy's own
+        # shortest text of that width, as pandas writes them
+        texts = list(map(repr, values.tolist())) if values.dtype == np.float64 else values.astype(str).tolist()
+        for i in np.flatnonzero(np.isnan(values)).tolist():
+            texts[i] = ""
+        return texts
+    if isinstance(dtype, np.dtype) and kind in "iu":
+        return list(map(str, series.to_numpy().tolist()))
+    if isinstance(dtype, np.dtype) and kind == "b":
+        return list(map(str, series.to_numpy().tolist()))
+    missing = series.isna().to_numpy()
+    values = series.to_numpy(dtype=object).tolist()
+    if kind == "f":  # a nullable float column: repr as for numpy floats
+        return ["" if gap else repr(float(v)) for v, gap in zip(values, missing.tolist())]
+    if not missing.any():
+        return [_quoted(v if isinstance(v, str) else str(v)) for v in values]
+    return ["" if gap else _quoted(v if isinstance(v, str) else str(v)) for v, gap in zip(values, missing.tolist())]
+
+
+def _write_plain_csv(table: "pd.DataFrame", path: Path) -> None:
+    """Write ``table`` without index to ``path`` as :func:`write_csv` describes."""
+    newline = os.linesep
+    with open(path, "w", encoding="utf-8", newline="") as fh:
+        fh.write(",".join(_quoted(c) for c in table.columns) + newline)
+        for start in range(0, len(table), CSV_BLOCK_ROWS):
+            block = table.iloc[start:start + CSV_BLOCK_ROWS]
+            columns_text = [_column_texts(block[c]) for c in table.columns]
+            fh.write(newline.join(map(",".join, zip(*columns_text))) + newline)
 
 
 TEXT_COLUMNS: frozenset[str] = frozenset({

@@ -43,6 +43,11 @@ from redoxfront.ranking.pareto import first_front_mask
 
 MAX_ERRORBARS = 300
 """At most this many candidates (highest probability first) get error bars."""
+RASTER_ABOVE = 2000
+"""A layer of more points than this (the grey candidates off the first front of a large
+library) is drawn as one embedded image inside the SVG, with the same marker shapes, instead
+of one SVG element per point: the file stays small and quick to write and to open. The first
+front, the picks, the knee, the front line, the axes and all text stay vector."""
 
 LABELS = {
     col.CELL_VOLTAGE: "cell voltage (V)",
@@ -63,8 +68,15 @@ KIND_WORDS = {
 KIND_EDGE = {"candidate": INK, "extrapolating": ACCENT, "uncalibrated": CAUTION}
 
 
-def _ranked(table: pd.DataFrame) -> pd.DataFrame:
-    return table[table[col.PARETO_RANK].notna()].copy()
+_DRAWN = (col.ID, col.PARETO_RANK, col.P_FRONT, col.PICK_ORDER, col.KNEE, col.EXTRAPOLATING,
+          col.POTENTIAL_BASIS, *(c for pair in INTERVALS.values() for c in pair))
+"""Columns the figures read besides the plotted objectives."""
+
+
+def _ranked(table: pd.DataFrame, plotted: Sequence[str]) -> pd.DataFrame:
+    """The ranked rows, only the columns a figure reads (a large table is not copied whole)."""
+    keep = list(dict.fromkeys(c for c in (*plotted, *_DRAWN) if c in table.columns))
+    return table.loc[table[col.PARETO_RANK].notna().to_numpy(), keep]
 
 
 def trust_kind(table: pd.DataFrame) -> np.ndarray:
@@ -92,16 +104,24 @@ def _points(ax: "plt.Axes", sub: pd.DataFrame, xcol: str, ycol: str, *, size: fl
     """Draw ``sub`` with the marker of its trust kind; filled by probability on the front
     when ``coloured``, else grey; edge colour repeats the kind."""
     kinds = trust_kind(sub)
+    raster = len(sub) > RASTER_ABOVE
     for kind in ("candidate", "uncalibrated", "extrapolating"):
         m = kinds == kind
         if not m.any():
             continue
         part = sub[m]
-        face = dict(c=part[col.P_FRONT].to_numpy(float), cmap=CMAP, vmin=0, vmax=1) if coloured else dict(color=MUTED)
         edge = KIND_EDGE[kind] if (coloured or kind != "candidate") else "none"
-        ax.scatter(part[xcol].to_numpy(float), part[ycol].to_numpy(float), s=size * (1.3 if kind != "candidate" else 1),
-                   marker=MARKERS[kind], edgecolors=edge, linewidths=1.1 if kind != "candidate" else 0.5,
-                   zorder=zorder, **face)
+        area = size * (1.3 if kind != "candidate" else 1)
+        width = 1.1 if kind != "candidate" else 0.5
+        x, y = part[xcol].to_numpy(float), part[ycol].to_numpy(float)
+        if raster and not coloured:  # one face colour: drawn as markers of one line, in an image layer
+            ax.plot(x, y, linestyle="none", marker=MARKERS[kind], markersize=float(np.sqrt(area)),
+                    markerfacecolor=MUTED, markeredgecolor=edge, markeredgewidth=width if edge != "none" else 0,
+                    zorder=zorder, rasterized=True)
+            continue
+        face = dict(c=part[col.P_FRONT].to_numpy(float), cmap=CMAP, vmin=0, vmax=1) if coloured else dict(color=MUTED)
+        ax.scatter(x, y, s=area, marker=MARKERS[kind], edgecolors=edge, linewidths=width,
+                   zorder=zorder, rasterized=raster, **face)
 
 
 def _legend(ax: "plt.Axes", kinds: set[str], extra: list[Line2D], below: bool = True) -> None:
@@ -171,7 +191,7 @@ def plot_front(table: pd.DataFrame, objectives: Sequence[str], path: str | Path)
     single = xname == yname
     if single:
         ycol = col.PARETO_RANK
-    data = _ranked(table)
+    data = _ranked(table, (xcol, ycol))
     keep = np.isfinite(pd.to_numeric(data[xcol], errors="coerce")) & np.isfinite(
         pd.to_numeric(data[ycol], errors="coerce"))
     if xname == "half_life":
@@ -219,7 +239,7 @@ def plot_pairwise(table: pd.DataFrame, objectives: Sequence[str], path: str | Pa
     cols_ = [OBJECTIVES[o][0] for o in objectives]
     pairs = list(combinations(range(len(cols_)), 2)) or [(0, 0)]
     fig, axes = plt.subplots(1, len(pairs), figsize=(3.9 * len(pairs) + 0.8, 4.2), squeeze=False)
-    data = _ranked(table).sort_values(col.P_FRONT)
+    data = _ranked(table, cols_).sort_values(col.P_FRONT)
     for ax, (a, b) in zip(axes[0], pairs):
         style_axes(ax)
         xcol, ycol = cols_[a], cols_[b]
