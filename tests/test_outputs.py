@@ -185,3 +185,24 @@ def test_write_csv_of_many_rows_is_written_in_blocks_and_whole(tmp_path: Path) -
     lines = write_csv(t, tmp_path / "big.csv").read_text().splitlines()
     assert len(lines) == n + 1 and lines[0] == "id,v"
     assert lines[-1] == f"c{n - 1},{(n - 1) / 3.0!r}"  # the last block's last row, not cut
+
+
+def test_tables_written_by_a_second_process_are_whole_and_failures_are_one_line(tmp_path: Path, monkeypatch) -> None:
+    from redoxfront import outputs
+    from redoxfront.errors import DataError
+
+    monkeypatch.setattr(outputs, "BACKGROUND_ROWS", 1)  # the forked writer even for a small table
+    t = _mixed_table(200)
+    wait = outputs.start_csv_writes([(t, tmp_path / "ranking.csv"), (t.head(5), tmp_path / "picks.csv")])
+    wait()
+    t.to_csv(tmp_path / "pandas.csv", index=False)
+    # pandas as the cross-check again: the child process wrote the same bytes
+    assert (tmp_path / "ranking.csv").read_bytes() == (tmp_path / "pandas.csv").read_bytes()
+    assert len((tmp_path / "picks.csv").read_text().splitlines()) >= 6
+    assert not [p.name for p in tmp_path.iterdir() if p.name.startswith(".")]  # no temporary left
+    (tmp_path / "real").mkdir()
+    (tmp_path / "linked").symlink_to(tmp_path / "real")
+    wait = outputs.start_csv_writes([(t, tmp_path / "linked" / "ranking.csv")])
+    with pytest.raises(DataError, match=r"writing ranking.csv failed: DataError: .*is a link to"):
+        wait()
+    assert not (tmp_path / "real" / "ranking.csv").exists()

@@ -22,7 +22,7 @@ import json
 import os
 import tempfile
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Iterable, Iterator
+from typing import TYPE_CHECKING, Any, Callable, Iterable, Iterator, Sequence
 
 from redoxfront import columns
 from redoxfront.errors import DataError
@@ -169,6 +169,63 @@ def _write_plain_csv(table: "pd.DataFrame", path: Path) -> None:
             fh.write(newline.join(map(",".join, zip(*columns_text))) + newline)
 
 
+BACKGROUND_ROWS = 20_000
+"""Tables of at least this many rows in all are written by :func:`start_csv_writes` in a
+forked process beside the caller's further work (the drawing of figures)."""
+
+
+def start_csv_writes(items: "Sequence[tuple[pd.DataFrame, str | Path]]") -> Callable[[], None]:
+    """Start writing each ``(table, path)`` with :func:`write_csv`; return ``wait``, which
+    returns once every file is in place and raises :class:`DataError` if a write failed.
+
+    Large tables (:data:`BACKGROUND_ROWS` rows in all) are written by a child process forked
+    from this one, so that a second core formats the text while this process goes on (the
+    child sees the tables as they are at the fork; nothing is pickled). Where fork is not
+    available, or inside a daemonic worker, or for small tables, the writes happen here and
+    ``wait`` has nothing to do. Each file is still written whole or not at all.
+    """
+    import multiprocessing
+
+    items = [(table, Path(path)) for table, path in items]
+    total = sum(len(table) for table, _ in items)
+    if (total < BACKGROUND_ROWS or "fork" not in multiprocessing.get_all_start_methods()
+            or multiprocessing.current_process().daemon):
+        for table, path in items:
+            write_csv(table, path)
+        return lambda: None
+    ctx = multiprocessing.get_context("fork")
+    receive, send = ctx.Pipe(duplex=False)
+    child = ctx.Process(target=_write_in_child, args=(items, send), name="redoxfront-csv-writer")
+    child.start()
+    send.close()
+    names = ", ".join(path.name for _, path in items)
+
+    def wait() -> None:
+        try:
+            problem = receive.recv()
+        except EOFError:
+            problem = "the writing process ended without a word"
+        finally:
+            receive.close()
+            child.join()
+        if problem or child.exitcode != 0:
+            raise DataError(f"writing {names} failed: {problem or f'exit code {child.exitcode}'}")
+
+    return wait
+
+
+def _write_in_child(items: "list[tuple[pd.DataFrame, Path]]", send: Any) -> None:
+    """Body of the writing process: write, then report '' or the one-line reason."""
+    try:
+        for table, path in items:
+            write_csv(table, path)
+        send.send("")
+    except BaseException as exc:  # noqa: BLE001 - the parent turns it into one DataError line
+        send.send(f"{type(exc).__name__}: {exc}".splitlines()[0])
+    finally:
+        send.close()
+
+
 TEXT_COLUMNS: frozenset[str] = frozenset({
     columns.ID, columns.SMILES, columns.CANONICAL_SMILES, columns.PARTNER_ID, columns.STATUS,
     columns.ROLE, columns.CALIBRATION_GROUP, columns.CALIBRATION_STATUS, columns.MODEL_SET,
@@ -209,8 +266,21 @@ def _is_text(name: str, extra: Iterable[str]) -> bool:
     return key in TEXT_COLUMNS or name in set(extra) or key.startswith(columns.SUBSTITUENT_PREFIX)
 
 
+def read_header(path: str | Path, *, remedy: str) -> list[str]:
+    """The column names of a CSV table (its first line), without reading the rest; a missing,
+    empty or undecodable file raises the one-line DataError of :func:`read_table`."""
+    p = Path(path)
+    if not p.is_file():
+        raise DataError(f"{p}: no such file; {remedy}")
+    try:
+        with p.open(newline="", encoding="utf-8-sig") as fh:
+            return next(csv.reader(fh), [])
+    except (csv.Error, UnicodeDecodeError, OSError) as exc:
+        raise DataError(f"{p}: damaged or not a CSV table ({type(exc).__name__}); {remedy}") from exc
+
+
 def read_table(path: str | Path, *, remedy: str, text_columns: Iterable[str] = (),
-               required: Iterable[str] = ()) -> "pd.DataFrame":
+               required: Iterable[str] = (), columns: Iterable[str] | None = None) -> "pd.DataFrame":
     """Read a CSV table with ids and other text columns as the strings written.
 
     ``remedy``: how the file is made again (``"run `redoxfront compute CAMPAIGN`"``) or fixed;
@@ -218,6 +288,7 @@ def read_table(path: str | Path, *, remedy: str, text_columns: Iterable[str] = (
     empty, not UTF-8 text, not a table or lacks a ``required`` column. Text columns
     (:data:`TEXT_COLUMNS`, ``substituent_*`` and ``text_columns``) keep every value as
     written, an empty cell as ``""``; numeric columns read the usual missing markers as NaN.
+    ``columns``: read only these (in the file's order), for a wide table of which a step needs a few.
     """
     import pandas as pd
 
@@ -235,8 +306,9 @@ def read_table(path: str | Path, *, remedy: str, text_columns: Iterable[str] = (
             raise DataError(f"{p}: column '{dup[0]}' appears twice in the header; {remedy}")
         text = [c for c in names if _is_text(c, extra)]
         na = {c: list(MISSING_MARKERS) for c in names if c not in text}
+        wanted = None if columns is None else [c for c in names if c in set(columns)]
         table = pd.read_csv(p, dtype={c: str for c in text}, keep_default_na=False, na_values=na,
-                            encoding="utf-8-sig")
+                            encoding="utf-8-sig", usecols=wanted)
     except DataError:
         raise
     except pd.errors.EmptyDataError as exc:

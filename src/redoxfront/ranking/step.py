@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import dataclasses
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import TYPE_CHECKING, Sequence
 
 import numpy as np
@@ -19,7 +20,7 @@ import pandas as pd
 from redoxfront import columns as col
 from redoxfront.campaign import bounded
 from redoxfront.errors import DataError, SettingsError
-from redoxfront.outputs import read_table, write_csv, write_json
+from redoxfront.outputs import read_header, read_table, start_csv_writes, write_json
 from redoxfront.units import reference_label
 from redoxfront.ranking.objectives import OBJECTIVES
 from redoxfront.ranking.pareto import (
@@ -36,7 +37,8 @@ from redoxfront.ranking.uncertainty import (
 )
 
 if TYPE_CHECKING:
-    from redoxfront.campaign import Campaign
+    from redoxfront.campaign import AqueousSettings, Campaign
+    from redoxfront.ranking.cell_metrics import CellSettings
 
 
 @dataclass(frozen=True)
@@ -255,13 +257,14 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True,
     table = read_table(src, remedy=f"regenerate it with `redoxfront {step} {campaign.folder}`", required=[col.ID])
     table[col.ID] = table[col.ID].astype(str)
     desc_path = campaign.results_dir / "descriptors.csv"
-    if desc_path.exists():  # potentials, role, charge count, molar mass live there
-        desc = read_table(desc_path, remedy=f"regenerate it with `redoxfront compute {campaign.folder}`")
-        if col.ID in desc.columns:
+    if desc_path.exists() and src != desc_path:  # potentials, role, charge count, molar mass live there
+        header = read_header(desc_path, remedy=f"regenerate it with `redoxfront compute {campaign.folder}`")
+        extra = [c for c in header if c not in table.columns]
+        if col.ID in header and extra:  # only what predictions.csv lacks is read (it usually carries all)
+            desc = read_table(desc_path, remedy=f"regenerate it with `redoxfront compute {campaign.folder}`",
+                              columns=[col.ID, *extra])
             desc[col.ID] = desc[col.ID].astype(str)
-            extra = [c for c in desc.columns if c not in table.columns]
-            if extra:
-                table = table.merge(desc[[col.ID, *extra]].drop_duplicates(col.ID), on=col.ID, how="left")
+            table = table.merge(desc.drop_duplicates(col.ID), on=col.ID, how="left")
     clock.lap("reading the tables")
     flag = truthy(table[col.MEASURED]) if col.MEASURED in table.columns else pd.Series(False, index=table.index)
     for target in (col.LOG10_K_FIRST, col.LOG10_K_SECOND):  # measured rates the model step carried
@@ -302,9 +305,20 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True,
     clock.lap("ranking (fronts, probability, picks)")
     out_dir = campaign.results_dir
     out_dir.mkdir(parents=True, exist_ok=True)
-    write_csv(result.table, out_dir / "ranking.csv")
-    write_csv(result.picks, out_dir / "picks.csv")
-    clock.lap("writing ranking.csv and picks.csv")
+    # a large table is written by a second process while this one draws the figures
+    wait_for_tables = start_csv_writes([(result.table, out_dir / "ranking.csv"), (result.picks, out_dir / "picks.csv")])
+    try:
+        _summary_and_figures(campaign, result, cell_settings, settings, aqueous, window, out_dir, clock)
+    finally:
+        wait_for_tables()
+        clock.lap("writing ranking.csv and picks.csv (the rest, after the figures)")
+    return result.table
+
+
+def _summary_and_figures(campaign: "Campaign", result: RankingResult, cell_settings: "CellSettings",
+                         settings: RankingSettings, aqueous: "AqueousSettings | None", window: dict | None,
+                         out_dir: Path, clock: "_PhaseClock") -> None:
+    """Write ranking_summary.json and the figures of a ranked campaign."""
     basis = result.table[col.POTENTIAL_BASIS].value_counts().to_dict()
     summary = {
         "objectives": list(result.objectives),
@@ -363,7 +377,6 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True,
                       aqueous.ph, cell_settings.water_overpotential_v, lines0, fig_dir / "pourbaix_picks.svg",
                       aqueous.temperature_k)
     clock.lap("figures")
-    return result.table
 
 
 class _PhaseClock:

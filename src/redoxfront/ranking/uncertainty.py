@@ -18,6 +18,7 @@ References
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 
 import numpy as np
@@ -152,7 +153,7 @@ def _likely_dominators(unc: Uncertain, pool: np.ndarray, k: int, neighbours: int
 
 
 def _front_counts(sub: Uncertain, n_draws: int, rng: np.random.Generator, element_budget: int,
-                  progress: bool, n_likely: int = 8) -> np.ndarray:
+                  progress: bool, n_likely: int = 8, likely: np.ndarray | None = None) -> np.ndarray:
     """How often each row of ``sub`` is on the first front over ``n_draws`` draws (exact).
 
     A cascade of sound tests against each row's likely dominators removes most
@@ -164,8 +165,8 @@ def _front_counts(sub: Uncertain, n_draws: int, rng: np.random.Generator, elemen
     counts = np.zeros(k, dtype=np.int64)
     if k == 0:
         return counts
-    pool = np.flatnonzero(first_front_mask(sub.mean))
-    likely = _likely_dominators(sub, pool, n_likely)
+    if likely is None:
+        likely = _likely_dominators(sub, np.flatnonzero(first_front_mask(sub.mean)), n_likely)
     chunk = int(max(1, min(n_draws, element_budget // max(1, k * m * 4))))
     bar = tqdm(total=n_draws, desc="front probability", unit="draw", disable=not progress, leave=False)
     done = 0
@@ -204,6 +205,44 @@ def _front_counts(sub: Uncertain, n_draws: int, rng: np.random.Generator, elemen
     return counts
 
 
+MC_THREADS: int = 2
+"""Threads that count blocks of Monte Carlo draws at once (both cores of a laptop; numpy
+releases the interpreter lock in the array work). The probabilities do not depend on it."""
+
+
+def _parallel_front_counts(sub: Uncertain, n_draws: int, seed: int, element_budget: int,
+                           progress: bool) -> np.ndarray:
+    """:func:`_front_counts` over blocks of draws, each block with its own seeded stream.
+
+    The block size follows from the element budget (half of it per block, so that two blocks
+    in flight stay within it), never from the thread count, so the result is the same on any
+    number of threads.
+    """
+    from concurrent.futures import ThreadPoolExecutor
+
+    k, m = sub.mean.shape
+    if k == 0:
+        return np.zeros(0, dtype=np.int64)
+    likely = _likely_dominators(sub, np.flatnonzero(first_front_mask(sub.mean)), 8)
+    half = max(1, element_budget // 2)
+    block = int(max(1, min(n_draws, half // max(1, k * m * 4))))
+    sizes = [min(block, n_draws - start) for start in range(0, n_draws, block)]
+    streams = np.random.SeedSequence(seed).spawn(len(sizes))
+    bar = tqdm(total=n_draws, desc="front probability", unit="draw", disable=not progress, leave=False)
+
+    def count(i: int) -> np.ndarray:
+        return _front_counts(sub, sizes[i], np.random.default_rng(streams[i]), half, False, likely=likely)
+
+    counts = np.zeros(k, dtype=np.int64)
+    threads = max(1, min(MC_THREADS, len(sizes), os.cpu_count() or 1))
+    with ThreadPoolExecutor(max_workers=threads) as pool:
+        for i, part in enumerate(pool.map(count, range(len(sizes)))):
+            counts += part
+            bar.update(sizes[i])
+    bar.close()
+    return counts
+
+
 def front_probability(
     mean: np.ndarray,
     low: np.ndarray,
@@ -225,6 +264,8 @@ def front_probability(
     possible draw has probability 0 and is not drawn; each remaining candidate is tested
     first against its likely dominators, and the few survivors of a draw exactly against
     each other. Temporary arrays hold about ``element_budget`` elements at most. Seeded: equal inputs give equal outputs.
+    The draws come in blocks, each from its own stream of ``SeedSequence(seed)``, counted on
+    :data:`MC_THREADS` threads; the answer does not depend on the number of threads.
     """
     if n_draws < 1:
         raise DataError(f"n_draws must be at least 1, got {n_draws}")
@@ -238,7 +279,7 @@ def front_probability(
     lower, upper = unc.lower[reps], unc.upper[reps]
     alive = np.flatnonzero(~_certainly_dominated(lower, upper))
     sub = Uncertain(unc.mean[reps][alive], unc.sd_low[reps][alive], unc.sd_high[reps][alive])
-    counts = _front_counts(sub, n_draws, np.random.default_rng(seed), element_budget, progress)
+    counts = _parallel_front_counts(sub, n_draws, seed, element_budget, progress)
     p_rep = np.zeros(len(reps))
     p_rep[alive] = counts / n_draws
     return p_rep[inverse]
