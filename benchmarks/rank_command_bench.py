@@ -127,10 +127,10 @@ def invented_campaign(folder: Path, n: int, draws: int, seed: int = 20261202) ->
     return {name: (results / name).stat().st_size / 2**20 for name in ("descriptors.csv", "predictions.csv")}
 
 
-def rank_command(campaign: Path) -> list[str]:
+def rank_command(campaign: Path, timings: bool = True) -> list[str]:
     """The command line a user runs: the environment's console script, else the same entry point."""
     script = Path(sys.executable).parent / "redoxfront"
-    args = ["rank", str(campaign), "--quiet", "--timings"]
+    args = ["rank", str(campaign), "--quiet", *(["--timings"] if timings else [])]
     if script.is_file():
         return [str(script), *args]
     return [sys.executable, "-c", "import sys; from redoxfront.cli import main; sys.exit(main())", *args]
@@ -141,6 +141,9 @@ def main() -> int:
     ap.add_argument("--n", type=int, default=100_000)
     ap.add_argument("--draws", type=int, default=1000)
     ap.add_argument("--keep", type=Path, default=None, help="write the campaign here and keep it (to look at the figures)")
+    ap.add_argument("--baseline", type=Path, default=None, metavar="SRC",
+                    help="also run the command with the package in SRC (another checkout's src/, e.g. the "
+                         "version before a change), right after, on the same campaign: before/after in one run")
     args = ap.parse_args()
     print(f"load average at start: {' '.join(f'{x:.2f}' for x in os.getloadavg())} (1, 5, 15 min); "
           f"{os.cpu_count()} cores")
@@ -187,6 +190,15 @@ def main() -> int:
                    [results / "ranking.csv", results / "picks.csv", *sorted((results / "figures").glob("*"))]}
         print("written: " + ", ".join(f"{k} {v:.2f} MiB" for k, v in written.items()))
         print("command output: " + " | ".join(done.stdout.strip().splitlines()[:3]))
+        if args.baseline:
+            base_env = dict(env, PYTHONPATH=str(args.baseline.resolve()))
+            t = time.perf_counter()
+            base = subprocess.run(rank_command(folder, timings=False), env=base_env, capture_output=True, text=True)
+            base_wall = time.perf_counter() - t
+            base_rss = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0  # max over both children
+            print(f"baseline {args.baseline} on the same campaign, right after (exit code {base.returncode}): "
+                  f"wall time {base_wall:.2f} s; this version {wall:.2f} s = {base_wall / wall:.2f}x faster; "
+                  f"peak resident set of either child {base_rss:.0f} MiB (no target: the baseline's)")
     finally:
         if not args.keep:
             shutil.rmtree(folder, ignore_errors=True)
