@@ -206,3 +206,15 @@ def test_tables_written_by_a_second_process_are_whole_and_failures_are_one_line(
     with pytest.raises(DataError, match=r"writing ranking.csv failed: DataError: .*is a link to"):
         wait()
     assert not (tmp_path / "real" / "ranking.csv").exists()
+
+
+def test_write_csv_columns_of_few_values_write_what_pandas_writes(tmp_path: Path) -> None:
+    n = 5000  # settings repeated on every row, with gaps: the path that formats each value once
+    t = pd.DataFrame({"id": [f"c{i}" for i in range(n)],
+                      "concentration_mol_per_l": np.where(np.arange(n) % 9 == 0, np.nan, 0.5),
+                      "capacity_ah_per_l": np.tile([13.40, 26.80, 0.0, 1e-7], n // 4)})
+    ours = write_csv(t, tmp_path / "ours.csv").read_bytes()
+    t.to_csv(tmp_path / "pandas.csv", index=False)
+    assert ours == (tmp_path / "pandas.csv").read_bytes()  # pandas (PyPI reference) as the cross-check
+    zeros = pd.DataFrame({"id": [f"c{i}" for i in range(n)], "v": np.tile([0.0, -0.0], n // 2)})
+    assert write_csv(zeros, tmp_path / "z.csv").read_text().splitlines()[1:3] == ["c0,0.0", "c1,-0.0"]

@@ -139,6 +139,14 @@ def _column_texts(series: "pd.Series") -> list[str]:
     kind = getattr(dtype, "kind", "O")
     if isinstance(dtype, np.dtype) and kind == "f":
         values = series.to_numpy()
+        if values.dtype == np.float64 and len(values) > 1000 and len(np.unique(values[:200])) < 20:
+            # few distinct values (a setting, a count): format each once
+            import pandas as pd
+
+            codes, uniques = pd.factorize(values, use_na_sentinel=True)
+            if len(uniques) * 4 < len(values) and not (np.signbit(values) & (values == 0)).any():  # -0.0 != 0.0 here
+                texts_of = np.array([*map(repr, uniques.tolist()), ""], dtype=object)  # code -1: missing
+                return texts_of[codes].tolist()
         # float64: Python's repr (shortest round-trip text); narrower floats: numpy's own
         # shortest text of that width, as pandas writes them
         texts = list(map(repr, values.tolist())) if values.dtype == np.float64 else values.astype(str).tolist()

@@ -82,8 +82,13 @@ def _ranked(table: pd.DataFrame, plotted: Sequence[str]) -> pd.DataFrame:
 def trust_kind(table: pd.DataFrame) -> np.ndarray:
     """Per row: 'extrapolating', 'uncalibrated' or 'candidate' (the marker it gets)."""
     n = len(table)
-    extrap = (table[col.EXTRAPOLATING].astype(str).str.lower().isin(("true", "1", "yes")).to_numpy()
-              if col.EXTRAPOLATING in table else np.zeros(n, bool))
+    flags = table[col.EXTRAPOLATING] if col.EXTRAPOLATING in table else None
+    if flags is None:
+        extrap = np.zeros(n, bool)
+    elif flags.dtype == bool:  # the ranked table's own booleans: no text to compare
+        extrap = flags.to_numpy()
+    else:
+        extrap = flags.astype(str).str.lower().isin(("true", "1", "yes")).to_numpy()
     raw = (table[col.POTENTIAL_BASIS].astype(str).eq("uncalibrated").to_numpy()
            if col.POTENTIAL_BASIS in table else np.zeros(n, bool))
     return np.where(extrap, "extrapolating", np.where(raw, "uncalibrated", "candidate"))
