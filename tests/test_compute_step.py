@@ -243,7 +243,7 @@ def test_charged_state_starts_from_the_vertical_point_already_computed(tmp_path)
     # the first point of the charged-state optimisation: an uninterrupted run reuses it, a run
     # resumed after the discharged state computes it again, and both reach the same minimum to
     # the last bit: each point's SCC starts from the previous point of the same path only
-    settings = ComputeSettings(role="catholyte", conformers=ConformerSettings(n_generate=4, refine_lowest=2))
+    settings = ComputeSettings(role="catholyte", conformers=ConformerSettings(n_generate=6, refine_lowest=2))
     cand = parse_candidate({"id": "dmb", "smiles": "COc1ccc(OC)cc1"}, 2, settings)
     whole = compute_candidate(cand, settings, str(tmp_path / "a.sqlite"))
     neutral = candidate_states(cand)[0].key  # the discharged state is stored as what it is

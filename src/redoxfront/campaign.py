@@ -306,7 +306,7 @@ class ComputeSettings:
             "engine": self.engine,
             "conformers": dataclasses.asdict(self.conformers),
             "optimizer": dataclasses.asdict(self.optimizer),
-            "schema": 2,  # 2: vertical energies of both neighbouring states
+            "schema": 3,  # 2: vertical energies of both neighbouring states; 3: heavy atoms embedded first
         }
         text = json.dumps(keep, sort_keys=True)
         return hashlib.sha256(text.encode()).hexdigest()[:16]

@@ -118,26 +118,23 @@ def force_field_geometry(mol: Any, seed: int) -> Any:
     """One conformer of ``mol`` (no explicit hydrogens): the molecule with hydrogens and coordinates, Angstrom.
 
     ETKDGv3 embeds the heavy atoms only (Riniker & Landrum, J. Chem. Inf. Model. 2015, 55,
-    2562), the hydrogens are placed on them (RDKit ``AddHs(addCoords=True)``), then at most
+    2562), the hydrogens are placed on them (:func:`~redoxfront.candidates.conformers.embed_heavy_atoms`,
+    as in the full tier's conformer search), then at most
     :data:`FORCE_FIELD_ITERATIONS` steps of MMFF94 (Halgren, J. Comput. Chem. 1996, 17, 490;
     UFF when MMFF lacks types) relax the whole molecule. The hydrogens come in the order
     ``Chem.AddHs`` gives them. Raises InputError when RDKit cannot embed.
     """
-    from rdkit import Chem, rdBase
+    from rdkit import Chem
     from rdkit.Chem import AllChem
 
-    heavy = Chem.Mol(mol)
+    from redoxfront.candidates.conformers import embed_heavy_atoms
+
     params = AllChem.ETKDGv3()
     params.randomSeed = seed
     params.numThreads = 1
-    with rdBase.BlockLogs():  # RDKit's advice to add hydrogens first: here they come after, on purpose
-        placed = AllChem.EmbedMolecule(heavy, params) >= 0
-        if not placed:
-            params.useRandomCoords = True
-            placed = AllChem.EmbedMolecule(heavy, params) >= 0
-    if not placed:
+    mol_h = embed_heavy_atoms(Chem.AddHs(mol), 1, params)
+    if mol_h.GetNumConformers() == 0:
         raise InputError("RDKit could not embed 3D coordinates", field="smiles")
-    mol_h = Chem.AddHs(heavy, addCoords=True)
     if AllChem.MMFFHasAllMoleculeParams(mol_h):
         AllChem.MMFFOptimizeMolecule(mol_h, maxIters=FORCE_FIELD_ITERATIONS)
     elif AllChem.UFFHasAllMoleculeParams(mol_h):
