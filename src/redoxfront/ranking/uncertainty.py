@@ -168,15 +168,20 @@ def _front_counts(sub: Uncertain, n_draws: int, rng: np.random.Generator, elemen
     if likely is None:
         likely = _likely_dominators(sub, np.flatnonzero(first_front_mask(sub.mean)), n_likely)
     chunk = int(max(1, min(n_draws, element_budget // max(1, k * m * 4))))
+    fixed = [not (sub.sd_low[:, c].any() or sub.sd_high[:, c].any()) for c in range(m)]
     bar = tqdm(total=n_draws, desc="front probability", unit="draw", disable=not progress, leave=False)
     done = 0
     while done < n_draws:
         b = min(chunk, n_draws - done)
         x = sub.draw(rng, b)  # (m, b, k): one objective contiguous
         first = likely[:, 0]
-        ge = x[0][:, first] >= x[0]
-        gt = x[0][:, first] > x[0]
-        for c in range(1, m):
+        ge = np.ones((b, k), dtype=bool)
+        gt = np.zeros((b, k), dtype=bool)
+        for c in range(m):
+            if fixed[c]:  # no uncertainty: the same comparison in every draw, made once
+                ge &= (sub.mean[first, c] >= sub.mean[:, c])[None, :]
+                gt |= (sub.mean[first, c] > sub.mean[:, c])[None, :]
+                continue
             xc = x[c][:, first]
             ge &= xc >= x[c]
             gt |= xc > x[c]
@@ -185,10 +190,10 @@ def _front_counts(sub: Uncertain, n_draws: int, rng: np.random.Generator, elemen
         del ge, gt
         for step in range(1, likely.shape[1]):
             j = likely[i, step]
-            ge = x[0, d, j] >= x[0, d, i]
-            gt = x[0, d, j] > x[0, d, i]
-            for c in range(1, m):
-                xi, xj = x[c, d, i], x[c, d, j]
+            ge = np.ones(len(i), dtype=bool)
+            gt = np.zeros(len(i), dtype=bool)
+            for c in range(m):
+                xi, xj = (sub.mean[i, c], sub.mean[j, c]) if fixed[c] else (x[c, d, i], x[c, d, j])
                 ge &= xj >= xi
                 gt |= xj > xi
             keep = ~(ge & gt)
