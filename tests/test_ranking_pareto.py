@@ -139,3 +139,15 @@ def test_dominated_by_any_and_large_fronts_with_ties(m):
     big = np.c_[x, 1.0 - x.sum(axis=1)]
     ref = paretoset.paretoset(big, sense=["max"] * m, distinct=False, use_numba=False)
     np.testing.assert_array_equal(P.first_front_mask(big), ref)
+
+
+def test_first_front_of_many_3d_points_agrees_with_paretoset():
+    """Above 5,000 points in 3-D the first front is found from a seed set; same mask."""
+    rng = np.random.default_rng(21)
+    v = rng.normal(2.8, 0.3, 12_000)  # an invented trade-off, and a coarse grid with many ties
+    for p in (np.c_[v, -1.2 * v + rng.normal(0, 0.8, len(v)), -rng.uniform(150, 600, len(v))],
+              rng.integers(0, 12, size=(9_000, 3)).astype(float)):
+        # paretoset (PyPI, test-only cross-check): non-dominated rows, duplicates kept
+        ref = paretoset.paretoset(p, sense=["max"] * 3, distinct=False)
+        np.testing.assert_array_equal(P.first_front_mask(p), ref)
+        np.testing.assert_array_equal(P.first_front_mask(p), P.non_dominated_ranks(p) == 1)

@@ -178,8 +178,30 @@ def first_front_mask(objectives: np.ndarray, block: int = 1024) -> np.ndarray:
         on = np.zeros(len(uniq), dtype=bool)
         on[o] = y > best_before
         return on[inverse.reshape(-1)]
-    if p.shape[1] == 3 and n > 2000:
-        return non_dominated_ranks(p) == 1  # sweep: no quadratic blow-up on large fronts
+    if p.shape[1] == 3 and n > 5000:
+        # most points are dominated by a few front points: find the front of a small seed set
+        # (the best by each objective and by the scaled sum), drop every point that one of
+        # those dominates, and filter the rest exactly. A dropped point cannot hide a front
+        # point: whatever it dominates, the seed that dominates it dominates too.
+        span = np.ptp(p, axis=0)
+        scaled = ((p - p.min(axis=0)) / np.where(span > 0, span, 1.0)).sum(axis=1)
+        picks = [np.argpartition(-scaled, 1000)[:1000]]
+        picks += [np.argpartition(-p[:, c], 300)[:300] for c in range(p.shape[1])]
+        seeds = np.unique(np.concatenate(picks))
+        seed_front = p[seeds[first_front_mask(p[seeds], block)]]
+        rest = np.flatnonzero(~_dominated_by_any(p, seed_front))
+        keep = np.zeros(n, dtype=bool)
+        if len(rest) > 20_000:
+            keep[rest] = non_dominated_ranks(p[rest]) == 1  # sweep: no quadratic blow-up on large fronts
+        else:
+            keep[rest] = first_front_mask(p[rest], block) if len(rest) < n else _presorted_front(p, block)
+        return keep
+    return _presorted_front(p, block)
+
+
+def _presorted_front(p: np.ndarray, block: int) -> np.ndarray:
+    """First-front mask by presort and filter, block by block (see :func:`first_front_mask`)."""
+    n = len(p)
     order = _lexsort_desc(p)
     q = p[order]
     front_pts = np.empty((0, p.shape[1]))
