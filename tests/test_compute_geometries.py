@@ -7,7 +7,8 @@ import pytest
 from rdkit import Chem
 
 from redoxfront.campaign import load_campaign
-from redoxfront.compute.step import compute_campaign
+from redoxfront.candidates.structures import read_candidates
+from redoxfront.compute.step import compute_campaign, compute_candidates
 
 
 def test_compute_writes_the_lowest_conformer_of_every_state(tmp_path: Path):
@@ -21,7 +22,13 @@ def test_compute_writes_the_lowest_conformer_of_every_state(tmp_path: Path):
         ("anisole", "discharged"), ("anisole", "charged"), ("px", "discharged"), ("px", "charged")]
     assert [m.GetIntProp("total_charge") for m in mols] == [0, 1, 0, 1]
     assert [m.GetIntProp("multiplicity") for m in mols] == [1, 2, 1, 2]
-    stored = report.outcomes[0].states.states
+    # the driver kept no conformers (they went to the file as they arrived) ...
+    assert report.outcomes[0].states is None and report.states_held_peak >= 1
+    # ... and the file holds the lowest conformers the store holds (read back, no engine call)
+    cands, _ = read_candidates(tmp_path / "inputs" / "candidates.csv", report_settings := load_campaign(tmp_path).compute)
+    back, _ = compute_candidates(cands, report_settings, load_campaign(tmp_path).store_path, workers=1, progress=False)
+    assert sum(o.new_engine_calls for o in back) == 0
+    stored = back[0].states.states
     for m in mols[:2]:
         low = stored[m.GetProp("state")].lowest
         assert m.GetDoubleProp("energy_eh") == pytest.approx(low.energy_eh, abs=1e-9)

@@ -14,7 +14,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, Iterator
 
 from rdkit import Chem, RDLogger
 from rdkit.Chem import rdMolDescriptors
@@ -258,14 +258,31 @@ def read_candidates(
     A bad row never stops the batch. Duplicate ids: the first occurrence is kept. A file that
     cannot be a candidates file raises one InputError naming it (see :mod:`.files`).
     """
+    problems: list[InputError] = []
+    good = list(iter_candidates(path, settings, problems))
+    return good, problems
+
+
+def iter_candidates(
+    path: str | Path, settings: ComputeSettings, problems: list[InputError] | None = None,
+    only_ids: set[str] | None = None,
+) -> Iterator[Candidate]:
+    """The good candidates of a file one at a time, in file order (what :func:`read_candidates`
+    returns, without holding them all); each bad row is appended to ``problems``.
+
+    ``only_ids``: parse only the rows with these ids (the others are skipped unread, so their
+    problems are not reported: the caller read the whole file before).
+    """
     p = Path(path)
     rows = sdf_rows(p) if p.suffix.lower() in SDF_SUFFIXES else csv_rows(p, KNOWN_COLUMNS)
-    good: list[Candidate] = []
-    problems: list[InputError] = []
+    problems = [] if problems is None else problems
     seen: dict[str, int] = {}
     for row, raw in rows:
         if isinstance(raw, InputError):  # the row could not even be split into fields
-            problems.append(raw)
+            if only_ids is None:
+                problems.append(raw)
+            continue
+        if only_ids is not None and _clean(raw.get("id")) not in only_ids:
             continue
         try:
             cand = parse_candidate(raw, row, settings, source=p.name)
@@ -279,8 +296,7 @@ def read_candidates(
             ))
             continue
         seen[cand.id] = row
-        good.append(cand)
-    return good, problems
+        yield cand
 
 
 def redox_states(mol_h: Chem.Mol, role: str, n_electrons: int) -> list[RedoxState]:

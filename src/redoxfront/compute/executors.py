@@ -8,14 +8,15 @@ machine for the local pool; on Dask the cluster's own worker settings apply
 
 from __future__ import annotations
 
+import itertools
 import multiprocessing
 import os
 import sys
 import threading
 import time
 import warnings
-from concurrent.futures import ProcessPoolExecutor, as_completed
-from typing import Any, Callable, Iterator, Sequence
+from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from typing import Any, Callable, Iterable, Iterator
 
 from tqdm.auto import tqdm
 
@@ -26,7 +27,7 @@ PARENT_CHECK_S = 0.5
 """How often a pool worker checks that the process that started it is still alive, s."""
 
 
-def _exit_with_parent(parent_pid: int, kernel_signal: bool) -> None:
+def exit_with_parent(parent_pid: int, kernel_signal: bool) -> None:
     """Make this worker end when ``parent_pid`` dies, even by kill -9 (which runs no clean-up).
 
     Linux: the kernel sends SIGKILL to the worker when its parent dies (``prctl``
@@ -59,7 +60,7 @@ def _init_worker(threads: int, parent_pid: int | None = None, kernel_signal: boo
     for var in THREAD_VARIABLES:
         os.environ[var] = str(threads)
     if parent_pid is not None:
-        _exit_with_parent(parent_pid, kernel_signal)
+        exit_with_parent(parent_pid, kernel_signal)
 
 
 def _start_method(threads_per_worker: int) -> str:
@@ -87,9 +88,16 @@ def plan_workers(workers: int, threads_per_worker: int) -> int:
     return min(workers, fit)
 
 
+def default_window(workers: int) -> int:
+    """Tasks in flight at once: enough to keep every worker busy while the driver handles a
+    result (the pool queues one more per worker), few enough that the driver holds only a
+    few tasks' inputs and results."""
+    return max(2, 3 * workers)
+
+
 def map_tasks(
     func: Callable[..., Any],
-    items: Sequence[Any],
+    items: Iterable[Any],
     *,
     args: tuple[Any, ...] = (),
     workers: int = 1,
@@ -97,20 +105,31 @@ def map_tasks(
     dask_address: str | None = None,
     progress: bool = True,
     desc: str = "tasks",
+    total: int | None = None,
+    window: int | None = None,
+    unit: str = "mol",
 ) -> Iterator[Any]:
     """Yield ``func(item, *args)`` for every item, in completion order.
+
+    ``items`` may be a lazy iterable (a generator that reads or looks up what each task needs):
+    it is drawn one item at a time as tasks finish, with at most ``window`` tasks in flight
+    (default :func:`default_window`), so the driver holds a bounded number of tasks' inputs
+    and results whatever the number of items. ``total``: the number of items, for the
+    progress bar, when ``items`` has no length.
 
     ``dask_address``: a scheduler address ('tcp://host:8786'), or 'local' for a
     LocalCluster on this machine; None uses the local process pool (or this
     process when ``workers == 1``).
     """
-    bar = tqdm(total=len(items), desc=desc, disable=not progress, unit="mol")
+    if total is None and hasattr(items, "__len__"):
+        total = len(items)  # type: ignore[arg-type]
+    bar = tqdm(total=total, desc=desc, disable=not progress, unit=unit)
     try:
         if dask_address is not None:
-            yield from _map_dask(func, items, args, workers, dask_address, bar)
+            yield from _map_dask(func, items, args, workers, dask_address, bar, window)
             return
         workers = plan_workers(workers, threads_per_worker)
-        if workers == 1 or len(items) <= 1:
+        if workers == 1 or (total is not None and total <= 1):
             if "tblite" not in sys.modules:  # OpenMP reads its thread count once, at load
                 for var in THREAD_VARIABLES:
                     os.environ.setdefault(var, str(threads_per_worker))
@@ -118,17 +137,18 @@ def map_tasks(
                 yield func(item, *args)
                 bar.update(1)
             return
-        ctx = multiprocessing.get_context(_start_method(threads_per_worker))
+        method = _start_method(threads_per_worker)
+        ctx = multiprocessing.get_context(method)
         saved = {v: os.environ.get(v) for v in THREAD_VARIABLES}
         _init_worker(threads_per_worker)  # spawned children inherit these at start
         try:
             watch = (threads_per_worker, os.getpid(), threading.current_thread() is threading.main_thread())
             with ProcessPoolExecutor(workers, mp_context=ctx, initializer=_init_worker,
                                      initargs=watch) as pool:
-                futures = [pool.submit(func, item, *args) for item in items]
-                for fut in as_completed(futures):
-                    yield fut.result()
-                    bar.update(1)
+                if method == "fork":  # fork every worker now, before ``items`` opens a store or a file
+                    pool.submit(os.getpid).result()
+                yield from _windowed(lambda item: pool.submit(func, item, *args), items,
+                                     window or default_window(workers), bar)
         finally:
             for var, value in saved.items():
                 if value is None:
@@ -139,21 +159,68 @@ def map_tasks(
         bar.close()
 
 
-def _map_dask(func, items, args, workers, address, bar) -> Iterator[Any]:
-    from distributed import Client, LocalCluster
+def _windowed(submit: Callable[[Any], Future], items: Iterable[Any], window: int, bar: Any) -> Iterator[Any]:
+    """Keep ``window`` futures in flight; yield results as they finish; draw the next item only
+    when one has finished."""
+    source = iter(items)
+    running: set[Future] = set()
+    for item in itertools.islice(source, window):
+        running.add(submit(item))
+    while running:
+        finished, running = wait(running, return_when=FIRST_COMPLETED)
+        for fut in finished:
+            result = fut.result()
+            for item in itertools.islice(source, 1):
+                running.add(submit(item))
+            yield result
+            bar.update(1)
+
+
+def _local_cluster(workers: int) -> Any:
+    """A LocalCluster of ``workers`` single-threaded worker processes, started lean.
+
+    The parent shares 2 cores with the workers, so the cluster's own bookkeeping is kept small:
+    no dashboard, the nannies' memory monitor and the system monitor sampled every 2 s instead
+    of every 0.1-0.5 s, workers forked from a server process that has imported what the tasks
+    import (``forkserver`` with preloaded modules on Linux) instead of each spawned worker
+    importing them again.
+    """
+    import dask
+    from distributed import LocalCluster
+
+    config = {
+        "distributed.worker.memory.monitor-interval": "2s",
+        "distributed.admin.system-monitor.interval": "2s",
+        "distributed.scheduler.work-stealing-interval": "1s",
+    }
+    with dask.config.set(config):
+        return LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None)
+
+
+def _map_dask(func, items, args, workers, address, bar, window) -> Iterator[Any]:
+    from distributed import Client
     from distributed import as_completed as dask_as_completed
 
     cluster = None
     if address == "local":
-        cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
-                               dashboard_address=None)
+        cluster = _local_cluster(workers)
         client = Client(cluster)
+        from redoxfront.compute.dask_worker import ExitWithParent
+
+        client.register_plugin(ExitWithParent(os.getpid()))
     else:
         client = Client(address)
     try:
-        futures = [client.submit(func, item, *args, pure=False) for item in items]
-        for fut in dask_as_completed(futures):
-            yield fut.result()
+        size = window or default_window(len(client.scheduler_info().get("workers", {})) or workers)
+        source = iter(items)
+        done = dask_as_completed([client.submit(func, item, *args, pure=False)
+                                  for item in itertools.islice(source, size)])
+        for fut in done:
+            result = fut.result()
+            fut.release()
+            for item in itertools.islice(source, 1):
+                done.add(client.submit(func, item, *args, pure=False))
+            yield result
             bar.update(1)
     finally:
         client.close()

@@ -240,7 +240,7 @@ def chunked(items: Iterable[Any], size: int) -> Iterator[list[Any]]:
 
 
 def run_fast_tier(
-    jobs: Sequence[FastJob],
+    jobs: Iterable[FastJob],
     settings: ComputeSettings,
     store_path: str | None,
     *,
@@ -249,36 +249,51 @@ def run_fast_tier(
     dask_address: str | None = None,
     progress: bool = False,
     points: str = "both",
+    total: int | None = None,
 ) -> Iterator[FastResult]:
     """Fast tier of every job, yielded chunk by chunk as they finish (completion order).
 
-    Stored points are read in the driver and sent with the job; new points are written to
-    the store by the driver, one transaction per chunk. Memory: the driver holds the jobs and
-    one chunk of results at a time.
+    ``jobs`` may be a lazy iterable (a generator reading the candidates file): it is drawn one
+    chunk at a time as chunks finish. The points already stored are looked up in the driver per
+    chunk, just before the chunk is sent, and go with it; new points are written to the store
+    by the driver, one transaction per chunk. Memory: the driver holds the chunks in flight
+    (:func:`~redoxfront.compute.executors.default_window`) and nothing of the chunks done.
+    ``total``: the number of jobs, for the progress bar, when ``jobs`` has no length.
     """
     from redoxfront.compute.executors import map_tasks
     from redoxfront.compute.store import Store
 
     key = fast_tier_hash(settings)
-    store = Store(store_path) if store_path else None
-    try:
-        chunks = []
+    if store_path:
+        Store(store_path).close()  # creates the file and schema before any worker starts
+    opened: list[Store] = []
+
+    def store() -> Store:
+        # opened at the first chunk, after the pool has started (no SQLite handle across fork)
+        if not opened:
+            opened.append(Store(store_path))  # type: ignore[arg-type]
+        return opened[0]
+
+    def prepared() -> Iterator[list[tuple[FastJob, dict | None]]]:
         for chunk in chunked(jobs, chunk_size):
-            known = store.get_prefixed([j.smiles for j in chunk], FAST_ENTRY_PREFIX, key) if store else {}
-            chunks.append([(j, known.get(j.smiles)) for j in chunk])
-        if store is not None:
-            store.close()
-            store = None  # no open SQLite handle while the pool forks
-        for results in map_tasks(_fast_chunk, chunks, args=(settings, points), workers=workers,
-                                 dask_address=dask_address, progress=progress, desc="fast tier"):
+            known = store().get_prefixed([j.smiles for j in chunk], FAST_ENTRY_PREFIX, key) if store_path else {}
+            yield [(j, known.get(j.smiles)) for j in chunk]
+
+    n_chunks = None
+    if total is None and hasattr(jobs, "__len__"):
+        total = len(jobs)  # type: ignore[arg-type]
+    if total is not None:
+        n_chunks = -(-total // chunk_size)
+    try:
+        for results in map_tasks(_fast_chunk, prepared(), args=(settings, points), workers=workers,
+                                 dask_address=dask_address, progress=progress, desc="fast tier",
+                                 total=n_chunks, unit="chunk"):
             if store_path:
-                if store is None:
-                    store = Store(store_path)
-                store.put_many([(r.smiles, name, key, p) for r in results for name, p in r.payloads.items()])
+                store().put_many([(r.smiles, name, key, p) for r in results for name, p in r.payloads.items()])
             yield from results
     finally:
-        if store is not None:
-            store.close()
+        for s in opened:
+            s.close()
 
 
 __all__ = [

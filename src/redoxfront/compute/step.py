@@ -10,9 +10,10 @@ a rerun reads it back instead of computing it again.
 from __future__ import annotations
 
 import time
+import weakref
 from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any, Callable, Iterator
 
 from typing import TYPE_CHECKING
 
@@ -26,12 +27,12 @@ from redoxfront.candidates.structures import (
     Candidate,
     RedoxState,
     candidate_states,
-    read_candidates,
     redox_states,
 )
 from redoxfront.compute.aqueous import add_proton_coupling
 from redoxfront.compute.executors import map_tasks
-from redoxfront.compute.geometries import write_geometries
+from redoxfront.compute.fast_tier import chunked
+from redoxfront.compute.geometries import GeometrySpool
 from redoxfront.compute.lock import campaign_lock
 from redoxfront.compute.store import Store
 from redoxfront.descriptors import descriptors_for_candidate
@@ -491,7 +492,12 @@ def _bipolar_row(row: dict[str, Any], outcome: CandidateOutcome, settings: Compu
 
 @dataclass(frozen=True)
 class ComputeReport:
-    """Result of a compute run: the table, the rejected rows and the cost of this run."""
+    """Result of a compute run: the table, the rejected rows and the cost of this run.
+
+    ``outcomes`` are slim: in input order, each with its candidate, failure and costs, but
+    without its states or row (the states went to ``geometries.sdf`` as they arrived, the rows
+    are ``table``), so a large run does not hold every candidate's conformers.
+    """
 
     table: "pd.DataFrame"
     problems: list[InputError]
@@ -499,6 +505,75 @@ class ComputeReport:
     new_engine_calls: int
     new_engine_seconds: float
     wall_time_s: float
+    states_held_peak: int = 0
+    """Most candidates' states the driver held at once (at most the tasks in flight)."""
+
+
+DRIVER_CHUNK = 64
+"""Candidates whose stored states the driver looks up at a time for a cluster run."""
+
+
+def iter_compute(
+    candidates: list[Candidate],
+    settings: ComputeSettings,
+    store_path: str | Path,
+    *,
+    workers: int | None = None,
+    dask_address: str | None = None,
+    progress: bool = True,
+    sections: dict[str, Any] | None = None,
+    describe: bool = True,
+    aqueous: AqueousSettings | None = None,
+    chunk_size: int = DRIVER_CHUNK,
+) -> Iterator[CandidateOutcome]:
+    """Compute every candidate and its descriptor row; yield each outcome as it finishes.
+
+    Largest candidates first (the pool's tail is then short jobs). Local workers read and write
+    the store themselves. Cluster workers may not see this file system: the driver looks up the
+    states already stored ``chunk_size`` candidates at a time, just before it sends them (never
+    the whole store up front), and stores what comes back. At most
+    :func:`~redoxfront.compute.executors.default_window` tasks are in flight, so the driver holds
+    only their results; what the caller keeps of each outcome is up to it.
+    Candidates whose states are all stored go to the workers too: their descriptors are
+    recomputed in parallel (after a change of sites, say), with no engine call.
+    """
+    sections = (sections or {}) if describe else None
+    store_path = str(store_path)
+    workers = settings.workers if workers is None else workers
+    local = dask_address is None
+    Store(store_path).close()  # creates the file and schema before workers open it
+    if not candidates:
+        return
+    ordered = sorted(candidates, key=_expected_cost, reverse=True)
+    task_args = (settings, store_path if local else None, sections, aqueous)
+    opened: list[Store] = []
+
+    def store() -> Store:
+        # opened when the first cluster chunk is looked up (no SQLite handle across a fork)
+        if not opened:
+            opened.append(Store(store_path))
+        return opened[0]
+
+    def items() -> Iterator[tuple[Candidate, dict | None]]:
+        for chunk in chunked(ordered, chunk_size):
+            if local:
+                yield from ((c, None) for c in chunk)
+            else:
+                yield from ((c, _stored_states(store(), c, settings)) for c in chunk)
+
+    key_hash = settings.result_hash()
+    try:
+        for out in map_tasks(_run_job, items(), args=task_args, workers=workers,
+                             threads_per_worker=settings.threads_per_worker, dask_address=dask_address,
+                             progress=progress, desc="redox states", total=len(ordered)):
+            if not local:  # local workers wrote their states already
+                for state, payload in out.payloads.items():
+                    key = conformer_key(settings) if state == CONFORMER_ENTRY else key_hash
+                    store().put(out.candidate.main_smiles, state, key, payload)
+            yield replace(out, payloads={})  # stored: keep memory flat
+    finally:
+        for s in opened:
+            s.close()
 
 
 def compute_candidates(
@@ -515,43 +590,16 @@ def compute_candidates(
 ) -> tuple[list[CandidateOutcome], float]:
     """Compute every candidate and its descriptor row (local pool or Dask), in input order.
 
+    Returns every outcome whole (states included): for a few candidates (tests, benchmarks);
+    a campaign run goes through :func:`iter_compute` and keeps only the rows.
     ``sections``: the campaign's raw ``sites`` and ``descriptors`` tables;
     ``describe=False`` leaves the descriptors out (potentials only, for a first pass);
     ``aqueous``: potentials at the pH of an aqueous campaign (:mod:`redoxfront.compute.aqueous`).
     """
-    sections = (sections or {}) if describe else None
     t0 = time.perf_counter()
-    store_path = str(store_path)
-    workers = settings.workers if workers is None else workers
-    key_hash = settings.result_hash()
-    outcomes: dict[str, CandidateOutcome] = {}
-    local = dask_address is None
-    # cluster workers may not see this file system: they get the states already stored and
-    # the results are stored here; local workers read and write the store themselves.
-    # Candidates whose states are all stored go to the workers too: their descriptors are
-    # recomputed in parallel (after a change of sites, say), with no engine call.
-    with Store(store_path) as store:  # creates the file and schema before workers open it
-        known = {c.id: None if local else _stored_states(store, c, settings) for c in candidates}
-    # largest first: the pool's tail is then short jobs, not one long one
-    items = [(c, known[c.id]) for c in sorted(candidates, key=_expected_cost, reverse=True)]
-    task_args = (settings, store_path if local else None, sections, aqueous)
-    if not items:
-        return [], time.perf_counter() - t0
-    # local workers wrote their states already; only cluster results are stored here.
-    # The parent holds no open store while the pool forks (SQLite handles must not cross fork).
-    store = None if local else Store(store_path)
-    try:
-        for out in map_tasks(_run_job, items, args=task_args, workers=workers,
-                             threads_per_worker=settings.threads_per_worker, dask_address=dask_address,
-                             progress=progress, desc="redox states"):
-            if store is not None:
-                for state, payload in out.payloads.items():
-                    key = conformer_key(settings) if state == CONFORMER_ENTRY else key_hash
-                    store.put(out.candidate.main_smiles, state, key, payload)
-            outcomes[out.candidate.id] = replace(out, payloads={})  # stored: keep memory flat
-    finally:
-        if store is not None:
-            store.close()
+    outcomes = {o.candidate.id: o for o in iter_compute(
+        candidates, settings, store_path, workers=workers, dask_address=dask_address, progress=progress,
+        sections=sections, describe=describe, aqueous=aqueous)}
     return [outcomes[c.id] for c in candidates], time.perf_counter() - t0
 
 
@@ -643,6 +691,21 @@ def _run_job(job: tuple[Candidate, dict | None], settings: ComputeSettings, stor
     return candidate_task(job[0], settings, store_path, job[1], sections, aqueous)
 
 
+class _LiveCounter:
+    """Counts objects alive at once (a weak reference each), to check the driver's memory."""
+
+    def __init__(self) -> None:
+        self.alive = self.peak = 0
+
+    def track(self, obj: object) -> None:
+        self.alive += 1
+        self.peak = max(self.peak, self.alive)
+        weakref.finalize(obj, self._gone)
+
+    def _gone(self) -> None:
+        self.alive -= 1
+
+
 def compute_campaign(
     campaign: Campaign,
     *,
@@ -653,11 +716,13 @@ def compute_campaign(
     progress: bool = True,
     describe: bool = True,
     only_ids: set[str] | None = None,
+    problems: list[InputError] | None = None,
 ) -> ComputeReport:
     """Read the campaign's candidates, compute them, write ``results/descriptors.csv``.
 
     ``only_ids``: compute only these candidates (the funnel's selection); the table then holds
-    just them (the full tier of a funnel run).
+    just them (the full tier of a funnel run), the other rows are not parsed, and ``problems``
+    are the rejected rows the caller found when it read the whole file.
 
     Also writes ``results/geometries.sdf``: the lowest conformer of every redox state.
 
@@ -668,33 +733,52 @@ def compute_campaign(
     """
     with campaign_lock(campaign.folder):
         return _compute_campaign(campaign, candidates_path, out_path, workers, dask_address, progress, describe,
-                                 only_ids)
+                                 only_ids, problems)
 
 
 def _compute_campaign(campaign: Campaign, candidates_path: str | Path | None, out_path: str | Path | None,
                       workers: int | None, dask_address: str | None, progress: bool,
-                      describe: bool, only_ids: set[str] | None = None) -> ComputeReport:
+                      describe: bool, only_ids: set[str] | None = None,
+                      known_problems: list[InputError] | None = None) -> ComputeReport:
+    from redoxfront.candidates.structures import iter_candidates
+    from redoxfront.compute.roster import roster_entry, roster_key, save_roster
+
     settings = campaign.compute
     path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates, "[inputs] candidates")
-    candidates, problems = read_candidates(path, settings)
-    if only_ids is not None:
-        candidates = [c for c in candidates if c.id in only_ids]
+    problems: list[InputError] = [] if only_ids is None else list(known_problems or [])
+    candidates = list(iter_candidates(path, settings, problems, only_ids=only_ids))
+    if only_ids is None:  # the whole file parsed: keep its list for `status`
+        key = roster_key(path, settings)
+        save_roster(campaign.store_path, key, (roster_entry(c) for c in candidates), problems)
     sections = {"sites": campaign.section("sites"), "descriptors": campaign.section("descriptors")}
-    outcomes, wall = compute_candidates(candidates, settings, campaign.store_path, workers=workers,
-                                        dask_address=dask_address, progress=progress, sections=sections,
-                                        describe=describe, aqueous=aqueous_settings(campaign))
-    import pandas as pd  # here: the commands that only read the store need not load it
-
-    table = pd.DataFrame([o.row for o in outcomes])
     out = Path(out_path) if out_path else campaign.results_dir / "descriptors.csv"
     out.parent.mkdir(parents=True, exist_ok=True)
-    write_csv(table, out)
-    problems_table = pd.DataFrame(
-        [{"file": p.source, "row": p.row, "field": p.field, "reason": p.reason} for p in problems],
-        columns=["file", "row", "field", "reason"],
-    )
-    write_csv(problems_table, out.parent / "input_problems.csv")
-    write_geometries([o.states for o in outcomes if o.states is not None], out.parent / "geometries.sdf")
+    t0 = time.perf_counter()
+    rows: dict[str, dict[str, Any]] = {}
+    slim: dict[str, CandidateOutcome] = {}
+    live = _LiveCounter()  # how many candidates' states are alive in this process at once
+    with GeometrySpool(out.parent / "geometries.sdf") as spool:
+        for o in iter_compute(candidates, settings, campaign.store_path, workers=workers,
+                              dask_address=dask_address, progress=progress, sections=sections,
+                              describe=describe, aqueous=aqueous_settings(campaign)):
+            if o.states is not None:
+                live.track(o.states)
+                spool.add(o.states)  # to disk: the driver keeps no conformers
+            rows[o.candidate.id] = o.row
+            slim[o.candidate.id] = replace(o, states=None, row={})
+            del o
+        wall = time.perf_counter() - t0
+        import pandas as pd  # here: the commands that only read the store need not load it
+
+        table = pd.DataFrame([rows.pop(c.id) for c in candidates])
+        write_csv(table, out)
+        problems_table = pd.DataFrame(
+            [{"file": p.source, "row": p.row, "field": p.field, "reason": p.reason} for p in problems],
+            columns=["file", "row", "field", "reason"],
+        )
+        write_csv(problems_table, out.parent / "input_problems.csv")
+        spool.write(c.id for c in candidates)
+    outcomes = [slim[c.id] for c in candidates]
     return ComputeReport(
         table=table,
         problems=problems,
@@ -702,11 +786,12 @@ def _compute_campaign(campaign: Campaign, candidates_path: str | Path | None, ou
         new_engine_calls=sum(o.new_engine_calls for o in outcomes),
         new_engine_seconds=sum(o.new_engine_seconds for o in outcomes),
         wall_time_s=wall,
+        states_held_peak=live.peak,
     )
 
 
 __all__ = [
     "CONFORMER_ENTRY", "CandidateOutcome", "ComputeReport", "checkpoint_name", "failure_text",
     "vertical_entry", "conformer_key", "candidate_row", "compute_campaign", "compute_candidate",
-    "compute_candidates", "candidate_task",
+    "compute_candidates", "candidate_task", "iter_compute",
 ]

@@ -46,6 +46,15 @@ CREATE TABLE IF NOT EXISTS states (
     PRIMARY KEY (smiles, state, settings_hash)
 )
 """
+_ROSTER_SCHEMA = """
+CREATE TABLE IF NOT EXISTS rosters (
+    key TEXT PRIMARY KEY,
+    payload TEXT NOT NULL,
+    created_unix REAL NOT NULL
+)
+"""
+ROSTERS_KEPT = 8
+"""Parsed candidate lists kept in a store (the newest; see :mod:`redoxfront.compute.roster`)."""
 
 
 class Store:
@@ -62,6 +71,7 @@ class Store:
                 con.execute("PRAGMA journal_mode=WAL")
                 con.execute("PRAGMA synchronous=NORMAL")
                 con.execute(_SCHEMA)
+                con.execute(_ROSTER_SCHEMA)  # an added table: stores without it simply gain it
                 self._con = con
                 self.migrated = self._migrate()
                 break
@@ -165,6 +175,42 @@ class Store:
                     f"SELECT smiles, state, payload FROM states WHERE settings_hash=? AND smiles IN ({marks}) "
                     "AND substr(state, 1, ?)=?", (settings_hash, *part, len(prefix), prefix)):
                 out.setdefault(s, {})[name] = json.loads(text)
+        return out
+
+    def put_roster(self, key: str, payload: Any) -> None:
+        """Keep a parsed candidate list under ``key`` (the newest :data:`ROSTERS_KEPT` are kept)."""
+        self._con.execute("BEGIN IMMEDIATE")
+        try:
+            self._con.execute("INSERT OR REPLACE INTO rosters VALUES (?, ?, ?)", (key, json.dumps(payload), time.time()))
+            self._con.execute("DELETE FROM rosters WHERE key NOT IN (SELECT key FROM rosters "
+                              "ORDER BY created_unix DESC LIMIT ?)", (ROSTERS_KEPT,))
+            self._con.execute("COMMIT")
+        except BaseException:
+            self._con.execute("ROLLBACK")
+            raise
+
+    def get_roster(self, key: str) -> Any | None:
+        """The parsed candidate list kept under ``key``, or None."""
+        row = self._con.execute("SELECT payload FROM rosters WHERE key=?", (key,)).fetchone()
+        return None if row is None else json.loads(row[0])
+
+    def entries_of(self, smiles: list[str], settings_hash: str, *,
+                   failures: bool = False) -> list[tuple[str, str, str | None]]:
+        """(smiles, entry name, stored failure or None) of every entry of these molecules under one
+        settings hash; the failure is read only with ``failures`` (it parses the payloads)."""
+        out: list[tuple[str, str, str | None]] = []
+        wanted = list(dict.fromkeys(smiles))
+        failed = "json_extract(payload, '$.failed')" if failures else "NULL"
+        for i in range(0, len(wanted), 500):  # SQLite's bound-parameter limit
+            part = wanted[i:i + 500]
+            marks = ",".join("?" * len(part))
+            query = (f"SELECT smiles, state, {{}} FROM states WHERE settings_hash=? AND smiles IN ({marks}) "
+                     "AND state NOT LIKE '%:vertical:%'")
+            try:
+                out += self._con.execute(query.format(failed), (settings_hash, *part)).fetchall()
+            except sqlite3.OperationalError:  # an SQLite built without its JSON functions
+                for s, name, text in self._con.execute(query.format("payload"), (settings_hash, *part)):
+                    out.append((s, name, json.loads(text).get("failed") if failures else None))
         return out
 
     def state_status(self, smiles: str, state: str, settings_hash: str) -> tuple[bool, str | None]:
