@@ -142,6 +142,8 @@ def status_command(campaign: Path, candidates: Path | None) -> None:
     click.echo(f"{total} candidates: {len(st.done)} done, {len(st.failed)} failed, "
                f"{len(st.partial)} partly done, {len(st.pending)} pending; "
                f"{len(st.rejected)} input rows rejected")
+    if st.fast_tier:
+        click.echo(f"fast tier (funnel): {len(st.fast_tier)} of {total} candidates stored")
     for cid, reason in st.failed.items():
         click.echo(f"  failed: {cid}: {reason}")
 

@@ -178,16 +178,7 @@ class FunnelReport:
 def funnel_campaign(campaign: Campaign, *, workers: int | None = None, dask_address: str | None = None,
                     progress: bool = True, describe: bool = True) -> FunnelReport:
     """Run the funnel on the campaign's candidates (see the module docstring)."""
-    import pandas as pd
-
-    from redoxfront.candidates.structures import read_candidates
-    from redoxfront.compute.fast_tier import (
-        FAST_ORBITAL_PROXY,
-        FAST_STATUS,
-        FastJob,
-        fast_vertical_column,
-        run_fast_tier,
-    )
+    from redoxfront.compute.fast_tier import FAST_ORBITAL_PROXY, FAST_STATUS, fast_vertical_column
     from redoxfront.compute.lock import campaign_lock
     from redoxfront.compute.step import compute_campaign
     from redoxfront.outputs import write_csv, write_json
@@ -196,19 +187,8 @@ def funnel_campaign(campaign: Campaign, *, workers: int | None = None, dask_addr
     settings = campaign.compute
     ref = settings.reference
     workers = settings.workers if workers is None else workers
-    path = campaign.path(campaign.inputs.candidates, "[inputs] candidates")
-    cands, _ = read_candidates(path, settings)
-    jobs = [FastJob.of(c) for c in cands]
-    del cands  # the compute step reads the file again for the few it computes
     with campaign_lock(campaign.folder):
-        rows = [r.row for r in run_fast_tier(jobs, settings, str(campaign.store_path), workers=workers,
-                                             chunk_size=fs.chunk_size, dask_address=dask_address,
-                                             progress=progress,
-                                             points="discharged" if fs.proxy == "orbital" else "both")]
-    order = {j.id: i for i, j in enumerate(jobs)}
-    fast = pd.DataFrame(rows)
-    del rows
-    fast = fast.iloc[np.argsort(fast["id"].map(order).to_numpy())].reset_index(drop=True)
+        fast, problems = fast_tier_table(campaign, workers=workers, dask_address=dask_address, progress=progress)
     vcol = FAST_ORBITAL_PROXY if fs.proxy == "orbital" else fast_vertical_column(ref)
     if vcol not in fast:
         fast[vcol] = np.nan
@@ -220,7 +200,7 @@ def funnel_campaign(campaign: Campaign, *, workers: int | None = None, dask_addr
         sample[idx[calibration_sample(fast[vcol].to_numpy()[idx], fs.calibration_sample)]] = True
     fast.loc[sample, SELECTION_COLUMN] = "calibration sample"
     first = compute_campaign(campaign, workers=workers, dask_address=dask_address, progress=progress,
-                             describe=describe, only_ids=set(fast.loc[sample, "id"]))
+                             describe=describe, only_ids=set(fast.loc[sample, "id"]), problems=problems)
     lines = _estimate(fast, first.table, ref, vcol, ok)
     for role in fast.loc[ok, "role"].unique():
         idx = np.flatnonzero(ok & (fast["role"] == role).to_numpy())
@@ -234,7 +214,7 @@ def funnel_campaign(campaign: Campaign, *, workers: int | None = None, dask_addr
         fast.loc[chosen, SELECTION_COLUMN] = f"selected by rule {fs.rule} (fraction {fs.fraction:g})"
     go = fast[SELECTION_COLUMN] != "not selected"
     report = compute_campaign(campaign, workers=workers, dask_address=dask_address, progress=progress,
-                              describe=describe, only_ids=set(fast.loc[go, "id"]))
+                              describe=describe, only_ids=set(fast.loc[go, "id"]), problems=problems)
     lines = _estimate(fast, report.table, ref, vcol, ok)
     results = campaign.results_dir
     write_csv(fast, results / "fast_tier.csv")
@@ -246,6 +226,59 @@ def funnel_campaign(campaign: Campaign, *, workers: int | None = None, dask_addr
                 "the two tiers on this campaign's full-tier results (95 % prediction interval)"})
     return FunnelReport(len(fast), int(ok.sum()), int(sample.sum()), int(go.sum() - sample.sum()),
                         int(go.sum()), lines, report)
+
+
+TABLE_PIECE = 4096
+"""Fast-tier rows the driver gathers into one table piece (plain dicts only this many at a time)."""
+
+
+def fast_tier_table(campaign: Campaign, *, workers: int = 1, dask_address: str | None = None,
+                    progress: bool = False, candidates_path: str | Path | None = None) -> tuple[Any, list[Any]]:
+    """The fast tier of every candidate of the campaign, as one table in input order, and the
+    rejected rows.
+
+    Streams: the candidates file is read row by row as the workers ask for chunks
+    (:func:`~redoxfront.compute.fast_tier.run_fast_tier`), each candidate's stored points are
+    looked up with its chunk, and the driver keeps of each candidate its table row only
+    (gathered into pieces of :data:`TABLE_PIECE` rows), never its molecule. The parsed list is
+    kept in the store for ``status`` (:mod:`redoxfront.compute.roster`).
+    """
+    import pandas as pd
+
+    from redoxfront.candidates.files import count_rows
+    from redoxfront.candidates.structures import iter_candidates
+    from redoxfront.compute.fast_tier import FastJob, run_fast_tier
+    from redoxfront.compute.roster import roster_entry, roster_key, save_roster
+
+    fs = funnel_settings(campaign)
+    settings = campaign.compute
+    path = Path(candidates_path) if candidates_path else Path(
+        campaign.path(campaign.inputs.candidates, "[inputs] candidates"))
+    problems: list[Any] = []
+    order: dict[str, int] = {}
+    entries = []
+
+    def jobs() -> Any:
+        for c in iter_candidates(path, settings, problems):
+            order[c.id] = len(order)
+            entries.append(roster_entry(c))
+            yield FastJob.of(c)
+
+    pieces, rows = [], []
+    for r in run_fast_tier(jobs(), settings, str(campaign.store_path), workers=workers, chunk_size=fs.chunk_size,
+                           dask_address=dask_address, progress=progress, total=count_rows(path),
+                           points="discharged" if fs.proxy == "orbital" else "both"):
+        rows.append(r.row)
+        if len(rows) >= TABLE_PIECE:
+            pieces.append(pd.DataFrame(rows))
+            rows = []
+    pieces.append(pd.DataFrame(rows))
+    fast = pd.concat(pieces, ignore_index=True) if len(pieces) > 1 else pieces[0]
+    del pieces, rows
+    if len(fast):
+        fast = fast.iloc[np.argsort(fast["id"].map(order).to_numpy(), kind="stable")].reset_index(drop=True)
+    save_roster(campaign.store_path, roster_key(path, settings), entries, problems)
+    return fast, problems
 
 
 def _estimate(fast: Any, full_table: Any, ref: str, vcol: str, ok: np.ndarray) -> dict[str, dict[str, Any]]:
@@ -288,5 +321,5 @@ def use_funnel(campaign: Campaign) -> bool:
 
 
 __all__ = ["PROXIES", "FunnelReport", "FunnelSettings", "RULES", "SELECTION_COLUMN", "TierLine", "calibration_sample",
-           "estimate_column", "fit_tier_line", "full_column", "full_tier_top_kept", "funnel_campaign",
+           "estimate_column", "fast_tier_table", "fit_tier_line", "full_column", "full_tier_top_kept", "funnel_campaign",
            "funnel_settings", "select", "use_funnel"]

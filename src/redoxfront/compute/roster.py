@@ -23,6 +23,7 @@ from redoxfront.engine.records import STATE_DISCHARGED
 from redoxfront.errors import InputError
 
 ROSTER_SCHEMA = 1
+"""Layout of a kept list; a new layout misses the old key and parses afresh."""
 
 
 @dataclass(frozen=True)
@@ -34,6 +35,8 @@ class RosterEntry:
     """Canonical SMILES of the charge carrier (the store key)."""
     states: tuple[str, ...]
     """Store names of its redox states (chain order)."""
+    names: tuple[str, ...]
+    """The part each plays for this candidate (discharged, charged, ...), same order."""
     discharged: str
     """Store name of its discharged state (computed first)."""
 
@@ -64,7 +67,8 @@ def roster_entry(candidate: Candidate) -> RosterEntry:
     """A candidate's entry (parses its carrier once more for the redox states)."""
     plan = candidate_states(candidate)
     first = next(s for s in plan if s.name == STATE_DISCHARGED)
-    return RosterEntry(candidate.id, candidate.main_smiles, tuple(s.key for s in plan), first.key)
+    return RosterEntry(candidate.id, candidate.main_smiles, tuple(s.key for s in plan), tuple(s.name for s in plan),
+                       first.key)
 
 
 def save_roster(store_path: str | Path, key: str, entries: Iterable[RosterEntry],
@@ -72,7 +76,8 @@ def save_roster(store_path: str | Path, key: str, entries: Iterable[RosterEntry]
     """Keep a parsed list in the store."""
     from redoxfront.compute.store import Store
 
-    payload = {"entries": [[e.id, e.smiles, list(e.states), e.discharged] for e in entries],
+    payload = {"entries": [[e.id, e.smiles, list(e.states), list(e.names), e.discharged]
+                           for e in entries],
                "problems": [[p.reason, p.row, p.field, p.source] for p in problems]}
     with Store(store_path) as store:
         store.put_roster(key, payload)
@@ -88,7 +93,7 @@ def load_roster(store_path: str | Path, key: str) -> Roster | None:
         payload = store.get_roster(key)
     if payload is None:
         return None
-    return Roster([RosterEntry(i, s, tuple(states), d) for i, s, states, d in payload["entries"]],
+    return Roster([RosterEntry(i, s, tuple(k), tuple(n), d) for i, s, k, n, d in payload["entries"]],
                   [InputError(r, row=row, field=f, source=src) for r, row, f, src in payload["problems"]])
 
 

@@ -229,9 +229,10 @@ def vertical_entry(state: RedoxState, other: RedoxState) -> str:
     return f"{state.key}:vertical:{other.key}"
 
 
-def failure_text(state: RedoxState, payload: dict[str, Any]) -> str:
-    """What a stored failure says, in this candidate's words (the store holds only the reason)."""
-    return f"{state.name} state: {payload['failed']}"
+def failure_text(state: RedoxState | str, payload: dict[str, Any]) -> str:
+    """What a stored failure says, in this candidate's words (the store holds only the reason);
+    ``state``: the state, or the part it plays for this candidate (discharged, charged, ...)."""
+    return f"{state if isinstance(state, str) else state.name} state: {payload['failed']}"
 
 
 def _stored_payload(sr: StateResult, plan: list[RedoxState]) -> dict[str, Any]:
