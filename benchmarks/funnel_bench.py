@@ -15,17 +15,28 @@ machine's load average at start and end:
   (target >= 1.8x);
 * a 100,000-member enumerated library (invented: a dialkoxybenzene with four sites x 18
   substituents, <= 23 heavy atoms): enumeration and reading timed on a sample slice, the fast
-  tier on the sample above, the whole extrapolated to 100,000 on 2 workers (target <= 1 h), and
-  the driver's memory holding 100,000 jobs and result rows (target <= 2 GB);
+  tier on the sample above, the whole extrapolated to 100,000 on 2 workers (target <= 1 h);
+* streaming (``--stream``, default 100,000): that many distinct invented candidates (three
+  dialkoxybenzene scaffolds x four sites) stream through the funnel's fast-tier driver in a
+  process of its own, their fast-tier points already in the store (placeholder numbers, so no
+  engine time is spent: the pass measures the driver, reading, chunks, store look-ups, the table
+  and fast_tier.csv): its peak resident set (target <= 2 GB); the full tier's driver on 200 and
+  2,000 stored rows, its memory per candidate extrapolated to the same count (target <= 2 GB);
+  ``redoxfront status`` end to end on that campaign, its store holding the fast tier of every
+  candidate and the full tier of a fifth (target <= 5 s; the same with the kept candidate list
+  removed, every row parsed, is printed without a target);
 Exits 1 when any figure misses its target. Run on an idle machine:
-  .venv/bin/python benchmarks/funnel_bench.py [--sample 240] [--no-dask]
+  .venv/bin/python benchmarks/funnel_bench.py [--sample 240] [--no-dask] [--stream 100000] [--only-stream]
 """
 
 from __future__ import annotations
 
 import argparse
+import itertools
+import json
 import os
 import resource
+import subprocess
 import sys
 import tempfile
 import time
@@ -83,6 +94,183 @@ def fast_tier_end_to_end(csv: Path, out: Path, store: Path, settings: ComputeSet
     return int((rows[FAST_STATUS] == "ok").sum()), wall, sum(r.engine_seconds for r in results)
 
 
+# ---- streaming: 100,000 candidates through the driver, and `status` --------------------------
+
+ALKOXY_PAIRS = (("C", "CC"), ("C", "CCC"), ("CC", "CCC"))
+"""Invented scaffolds for the streaming pass: 1,4-dialkoxybenzenes with two different alkoxy
+groups (methoxy/ethoxy, methoxy/propoxy, ethoxy/propoxy) and four ring sites."""
+
+
+def distinct_library(n: int) -> list[tuple[str, str]]:
+    """``n`` distinct invented members (id, SMILES): each scaffold's four sites take 17
+    substituents (no H), one of each mirror pair kept (the ring's mirror through the two alkoxy
+    groups swaps sites 2<->6 and 3<->5), about 41,900 per scaffold."""
+    subs = [s for s in SUBSTITUENTS if s != "H"]
+    out: list[tuple[str, str]] = []
+    for a, b in ALKOXY_PAIRS:
+        for i2, i3, i5, i6 in itertools.product(range(len(subs)), repeat=4):
+            if (i2, i3) > (i6, i5):  # the mirror image of one already written
+                continue
+            out.append((f"inv-{len(out) + 1:06d}",
+                        f"{a}Oc1c({subs[i2]})c({subs[i3]})c(O{b})c({subs[i5]})c1{subs[i6]}"))
+            if len(out) == n:
+                return out
+    return out
+
+
+def prepare_streaming_campaign(folder: Path, n: int, full_tier: int, settings: ComputeSettings) -> dict:
+    """A campaign of ``n`` distinct invented candidates whose fast-tier points are already in its
+    store, and ``full_tier`` of them with full-tier states (a large store, as after a funnel
+    run). The stored numbers are placeholders (one computed full-tier state, copied): the pass
+    measures the driver (reading, store look-ups, chunks, the table), not the engine."""
+    from rdkit import Chem
+
+    from redoxfront.compute.fast_tier import FAST_ENTRY_PREFIX, fast_tier_hash
+    from redoxfront.compute.step import compute_candidates
+    from redoxfront.compute.store import Store
+    from redoxfront.candidates.structures import parse_candidate
+    from redoxfront.engine.records import state_key
+
+    (folder / "inputs").mkdir(parents=True)
+    members = distinct_library(n)
+    with open(folder / "inputs" / "candidates.csv", "w") as fh:
+        fh.write("id,smiles\n")
+        fh.writelines(f"{i},{s}\n" for i, s in members)
+    (folder / "campaign.toml").write_text("[compute]\nrole = 'catholyte'\nworkers = 2\n")
+    t0 = time.perf_counter()
+    canonical = [Chem.MolToSmiles(Chem.MolFromSmiles(s)) for _, s in members]
+    # one real full-tier result (default settings) gives the size of a stored state
+    one = parse_candidate({"id": "one", "smiles": members[0][1]}, 2, settings)
+    store_path = folder / "cache.sqlite"
+    compute_candidates([one], settings, folder / "one.sqlite", workers=1, progress=False, describe=False)
+    key_hash = settings.result_hash()
+    with Store(folder / "one.sqlite") as one_store:
+        states = {k: one_store.get(one.main_smiles, k, key_hash) for k in (state_key(0, 0), state_key(1, 1))}
+    fast_key = fast_tier_hash(settings)
+    point = {"energy_eh": -50.0, "homo_eh": -0.35, "lumo_eh": -0.05, "charge": 0, "uhf": 0,
+             "geometry": "placeholder (benchmark store)"}
+    with Store(store_path) as store:
+        for i in range(0, n, 5000):
+            part = canonical[i:i + 5000]
+            rows = [(s, FAST_ENTRY_PREFIX + state_key(0, 0), fast_key, dict(point, homo_eh=-0.35 - 1e-6 * (i + j)))
+                    for j, s in enumerate(part)]
+            if i < full_tier:
+                rows += [(s, k, key_hash, p) for s in part[:full_tier - i] for k, p in states.items()]
+            store.put_many(rows)
+    return {"unique": len(set(canonical)), "prepare_s": time.perf_counter() - t0, "one_smiles": members[0][1],
+            "store_mib": store_path.stat().st_size / 2**20,
+            "state_kib": sum(len(json.dumps(p)) for p in states.values()) / 2 / 1024}
+
+
+def peak_mib() -> float:
+    """This process's peak resident set, MiB: VmHWM of /proc (ru_maxrss on Linux keeps the
+    parent's peak across fork and exec, so a small child of a large parent would read large)."""
+    try:
+        for text in Path("/proc/self/status").read_text().splitlines():
+            if text.startswith("VmHWM:"):
+                return int(text.split()[1]) / 1024
+    except OSError:
+        pass
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+
+
+def full_tier_pass(folder: Path) -> None:
+    """Child process: the full tier's driver (compute_campaign, potentials only) on a campaign
+    whose states are all stored; prints wall time and peak resident set as JSON."""
+    from redoxfront.campaign import load_campaign
+    from redoxfront.compute.step import compute_campaign
+
+    t0 = time.perf_counter()
+    rep = compute_campaign(load_campaign(folder), progress=False, describe=False)
+    print(json.dumps({"wall_s": time.perf_counter() - t0, "rows": len(rep.table), "engine_calls": rep.new_engine_calls,
+                      "peak_mib": peak_mib()}))
+
+
+def full_tier_driver(tmp: Path, one_smiles: str, one_store: Path, sizes: tuple[int, int]) -> list[dict]:
+    """The full tier's driver on ``sizes`` rows of one molecule whose states are stored (no engine
+    call; each row is its own task and outcome), each in a process of its own."""
+    import shutil
+
+    got = []
+    for n in sizes:
+        folder = tmp / f"full{n}"
+        (folder / "inputs").mkdir(parents=True)
+        (folder / "inputs" / "candidates.csv").write_text(
+            "id,smiles\n" + "".join(f"x{i},{one_smiles}\n" for i in range(n)))
+        (folder / "campaign.toml").write_text("[compute]\nrole = 'catholyte'\nworkers = 2\n")
+        shutil.copy(one_store, folder / "cache.sqlite")
+        child = subprocess.run([sys.executable, __file__, "--full-pass", str(folder)], capture_output=True,
+                               text=True, check=True)
+        got.append(json.loads(child.stdout.strip().splitlines()[-1]))
+    return got
+
+
+def driver_pass(folder: Path, workers: int) -> None:
+    """Child process: the funnel's fast-tier driver on the campaign (read, chunks, store look-ups,
+    table in input order, fast_tier.csv); prints wall time and peak resident set as JSON."""
+    from redoxfront.campaign import load_campaign
+    from redoxfront.compute.fast_tier import FAST_STATUS
+    from redoxfront.compute.funnel import fast_tier_table
+    from redoxfront.outputs import write_csv
+
+    t0 = time.perf_counter()
+    camp = load_campaign(folder)
+    fast, problems = fast_tier_table(camp, workers=workers)
+    write_csv(fast, camp.results_dir / "fast_tier.csv")
+    print(json.dumps({"wall_s": time.perf_counter() - t0, "rows": len(fast),
+                      "ok": int((fast[FAST_STATUS] == "ok").sum()), "rejected": len(problems),
+                      "peak_mib": peak_mib()}))
+
+
+def streaming(n: int, settings: ComputeSettings, missed: list[str]) -> None:
+    """Stream ``n`` candidates through the funnel's driver (fast-tier points already stored) in a
+    process of its own, then time ``redoxfront status`` on that campaign end to end."""
+    from redoxfront.compute.fast_tier import fast_tier_hash
+    from redoxfront.compute.store import Store
+
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = Path(tmp) / "campaign"
+        full = n // 5  # the default rule's share: the store after a funnel run
+        prep = prepare_streaming_campaign(folder, n, full, settings)
+        print(f"{n:,} invented candidates ({prep['unique']:,} distinct carriers), fast-tier points and "
+              f"{full:,} candidates' full-tier states already in the store ({prep['store_mib']:.0f} MiB; a stored "
+              f"state {prep['state_kib']:.1f} KiB; placeholder numbers, prepared in {prep['prepare_s']:.0f} s):",
+              flush=True)
+        child = subprocess.run([sys.executable, __file__, "--driver-pass", str(folder)], capture_output=True,
+                               text=True, check=True)
+        got = json.loads(child.stdout.strip().splitlines()[-1])
+        with Store(folder / "cache.sqlite") as store:
+            new_points = store.count(fast_tier_hash(settings)) - prep["unique"]
+        line(f"funnel driver peak resident set, {n:,} streamed", got["peak_mib"], "MiB", 2048, False, missed)
+        print(f"    (fast-tier driver on 2 workers: read, chunks, store look-ups, table, fast_tier.csv: "
+              f"{got['rows']:,} rows in {got['wall_s']:.1f} s, {new_points} points computed; a separate process)")
+        small, big = full_tier_driver(Path(tmp), prep["one_smiles"], folder / "one.sqlite", (200, 2000))
+        per_kib = (big["peak_mib"] - small["peak_mib"]) * 1024 / (2000 - 200)
+        at_n = small["peak_mib"] + per_kib * (n - 200) / 1024
+        line(f"full-tier driver peak resident set, {n:,} (from 200 and 2,000)", at_n, "MiB", 2048, False, missed)
+        print(f"    (compute step's driver, states all stored, {big['engine_calls']} engine calls: 200 rows "
+              f"{small['peak_mib']:.0f} MiB, 2,000 rows {big['peak_mib']:.0f} MiB = {per_kib:.1f} KiB per candidate, "
+              f"extrapolated linearly; 2,000 rows in {big['wall_s']:.1f} s)")
+        exe = str(Path(sys.executable).with_name("redoxfront"))
+        timings = []
+        for label in ("kept list", "parsed afresh"):
+            if label == "parsed afresh":
+                import sqlite3
+
+                con = sqlite3.connect(folder / "cache.sqlite")
+                con.execute("DELETE FROM rosters")
+                con.commit()
+                con.close()
+            t0 = time.perf_counter()
+            out = subprocess.run([exe, "status", str(folder)], capture_output=True, text=True, check=True)
+            timings.append((label, time.perf_counter() - t0, out.stdout.strip().splitlines()))
+        (_, warm, text), (_, cold, _) = timings
+        line(f"redoxfront status, {n:,} candidates, end to end", warm, "s", 5.0, False, missed)
+        print(f"    ({text[0]}; {text[-1] if len(text) > 1 else ''})")
+        print(f"    (the same with no kept candidate list, every row parsed: {cold:.1f} s; no target: any compute or "
+              "funnel run, or the first status, keeps the list)")
+
+
 def line(label: str, value: float, unit: str, target: float, higher_is_better: bool, missed: list[str]) -> None:
     ratio, ok = ratio_to_target(label, value, target, higher_is_better, missed)
     sign = ">=" if higher_is_better else "<="
@@ -94,11 +282,25 @@ def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--sample", type=int, default=240, help="about this many library members in the sample")
     ap.add_argument("--no-dask", action="store_true", help="leave out the Dask 2-vs-1 comparison")
+    ap.add_argument("--stream", type=int, default=LIBRARY_SIZE,
+                    help="candidates streamed through the driver and counted by status (0: leave out)")
+    ap.add_argument("--only-stream", action="store_true", help="only the streaming pass and status")
+    ap.add_argument("--driver-pass", type=Path, help=argparse.SUPPRESS)  # child processes of the streaming pass
+    ap.add_argument("--full-pass", type=Path, help=argparse.SUPPRESS)
     args = ap.parse_args()
+    if args.driver_pass:
+        driver_pass(args.driver_pass, 2)
+        return 0
+    if args.full_pass:
+        full_tier_pass(args.full_pass)
+        return 0
     settings = ComputeSettings()
     missed: list[str] = []
     print(f"load average at start: {' '.join(f'{x:.2f}' for x in os.getloadavg())} (1, 5, 15 min); "
           f"{os.cpu_count()} cores", flush=True)
+    if args.only_stream:
+        streaming(args.stream, settings, missed)
+        return finish(missed, all_loads=True)
     k = max(2, round(args.sample ** 0.25))
     table, enum_s = library_sample((k, k, k, max(1, round(args.sample / k ** 3))), 7)
     with tempfile.TemporaryDirectory() as tmp:
@@ -139,19 +341,8 @@ def main() -> int:
         per = (enum_s + read_s) / n + wall2 / max(ok2, 1)
         print(f"100,000-member library, extrapolated from the {n}-member sample on 2 workers:")
         line("enumerate + read + fast tier, 100,000 members", per * LIBRARY_SIZE / 3600, "h", 1.0, False, missed)
-        # driver memory: 100,000 jobs and result rows (the sample's rows repeated), resident set
-        import pandas as pd
-
-        from redoxfront.compute.fast_tier import FastJob
-
-        rows = pd.read_csv(tmp / "fast2.csv").to_dict("records")
-        before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-        jobs = [FastJob(f"x{i}", cands[i % len(cands)].main_smiles, "catholyte", 1) for i in range(LIBRARY_SIZE)]
-        frame = pd.DataFrame([dict(rows[i % len(rows)], id=f"x{i}") for i in range(LIBRARY_SIZE)])
-        peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-        line("driver peak resident set with 100,000 jobs + rows", peak, "MiB", 2048, False, missed)
-        print(f"    (of which the 100,000 jobs and rows added {peak - before:.0f} MiB; {len(jobs)} jobs, "
-              f"{frame.shape} table)")
+    if args.stream:
+        streaming(args.stream, settings, missed)
     return finish(missed, all_loads=True)
 
 
