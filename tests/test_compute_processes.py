@@ -150,3 +150,42 @@ def test_a_run_killed_ten_times_resumes_to_the_uninterrupted_numbers(tmp_path: P
     # common practice, no source: a result must not depend on where a run was stopped.
     # Tolerance: exact; every number is computed from the same inputs in the same order.
     pd.testing.assert_frame_equal(a, b, check_exact=True)
+
+
+def _descendants(pid: int) -> list[int]:
+    """Live processes below ``pid`` (children, their children, ...)."""
+    out, todo = [], [pid]
+    while todo:
+        kids = _children(todo.pop())
+        out += kids
+        todo += kids
+    return out
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="reads /proc")
+def test_local_dask_workers_exit_when_the_main_process_is_killed(tmp_path: Path) -> None:
+    pytest.importorskip("distributed")
+    folder = _campaign(tmp_path, ["CCCCOc1ccc(OCCCC)cc1C(C)(C)C", "CCCOc1ccc(OCCC)c(C)c1C",
+                                  "COc1ccc(OC)c2ccccc12", "CCOc1cc(C)c(OCC)cc1C"] * 2, refine=2, generate=4)
+    proc = subprocess.Popen([EXE, "compute", str(folder), "--quiet", "--cluster", "local"],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    below: list[int] = []
+    deadline = time.time() + 60
+    while time.time() < deadline and proc.poll() is None and len(below) < 3:  # server + 2 workers
+        below = _descendants(proc.pid)
+        time.sleep(0.1)
+    time.sleep(2.0)  # let the workers get their tasks
+    below = _descendants(proc.pid)
+    assert proc.poll() is None and len(below) >= 3, "the cluster's workers did not start"
+    proc.send_signal(signal.SIGKILL)
+    proc.wait()
+    t0 = time.time()
+    while time.time() - t0 < 15 and any(_alive(p) for p in below):
+        time.sleep(0.05)
+    exit_s = time.time() - t0
+    left = [p for p in below if _alive(p)]
+    for p in left:  # do not leave them running if the check fails
+        os.kill(p, signal.SIGKILL)
+    # common practice, no source: an orphaned worker must not outlive the run that started it
+    assert not left, f"{len(left)} process(es) of the local cluster still running 15 s after the main process was killed"
+    assert exit_s < 3.0  # the worker's 0.5 s check of its parent

@@ -8,6 +8,7 @@ machine for the local pool; on Dask the cluster's own worker settings apply
 
 from __future__ import annotations
 
+import importlib.util
 import itertools
 import multiprocessing
 import os
@@ -176,25 +177,62 @@ def _windowed(submit: Callable[[Any], Future], items: Iterable[Any], window: int
             bar.update(1)
 
 
+WORKER_PRELOAD = ("distributed", "numpy", "rdkit.Chem", "rdkit.Chem.AllChem", "tblite.interface",
+                  "redoxfront.compute.step", "redoxfront.compute.fast_tier")
+"""Modules a local cluster's worker processes start with: imported once, in the server process
+they are forked from, instead of once in every worker."""
+
+
+def _worker_start_method() -> str:
+    """'forkserver' with :data:`WORKER_PRELOAD` on Linux (workers forked from one process that
+    imported the task modules once), else Dask's default 'spawn' (every worker imports afresh).
+
+    The server process is started with one thread per worker in its environment (the engine's
+    OpenMP reads it once, at load) and ends with this process.
+    """
+    if not sys.platform.startswith("linux"):
+        return "spawn"
+    try:
+        import distributed.utils as dask_utils
+    except ImportError:
+        return "spawn"
+    if not hasattr(dask_utils, "_forkserver_preload_set"):
+        return "spawn"  # a distributed that chooses its preload otherwise: keep its default
+    if not dask_utils._forkserver_preload_set:
+        modules = [m for m in WORKER_PRELOAD if importlib.util.find_spec(m.split(".")[0]) is not None]
+        multiprocessing.get_context("forkserver").set_forkserver_preload(modules)
+        dask_utils._forkserver_preload_set = True  # instead of distributed's own list (pandas and more)
+    return "forkserver"
+
+
 def _local_cluster(workers: int) -> Any:
     """A LocalCluster of ``workers`` single-threaded worker processes, started lean.
 
-    The parent shares 2 cores with the workers, so the cluster's own bookkeeping is kept small:
-    no dashboard, the nannies' memory monitor and the system monitor sampled every 2 s instead
-    of every 0.1-0.5 s, workers forked from a server process that has imported what the tasks
-    import (``forkserver`` with preloaded modules on Linux) instead of each spawned worker
-    importing them again.
+    The parent shares the cores with the workers, so the cluster's own bookkeeping is kept small:
+    no dashboard, the nannies' memory monitor and the system monitor sampled every 2 s instead of
+    every 0.1-0.5 s, and the workers forked from a server process that imported the task modules
+    once (:func:`_worker_start_method`) instead of each importing everything again.
     """
     import dask
     from distributed import LocalCluster
 
+    saved = {v: os.environ.get(v) for v in THREAD_VARIABLES}
+    for var in THREAD_VARIABLES:  # read by the server process when it starts (and by spawned workers)
+        os.environ[var] = "1"
     config = {
         "distributed.worker.memory.monitor-interval": "2s",
         "distributed.admin.system-monitor.interval": "2s",
-        "distributed.scheduler.work-stealing-interval": "1s",
+        "distributed.worker.multiprocessing-method": _worker_start_method(),
     }
-    with dask.config.set(config):
-        return LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None)
+    try:
+        with dask.config.set(config):
+            return LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None)
+    finally:  # the server process started with one thread per worker; this process keeps its own
+        for var, value in saved.items():
+            if value is None:
+                os.environ.pop(var, None)
+            else:
+                os.environ[var] = value
 
 
 def _map_dask(func, items, args, workers, address, bar, window) -> Iterator[Any]:
@@ -205,9 +243,6 @@ def _map_dask(func, items, args, workers, address, bar, window) -> Iterator[Any]
     if address == "local":
         cluster = _local_cluster(workers)
         client = Client(cluster)
-        from redoxfront.compute.dask_worker import ExitWithParent
-
-        client.register_plugin(ExitWithParent(os.getpid()))
     else:
         client = Client(address)
     try:
