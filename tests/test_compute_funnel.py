@@ -148,6 +148,11 @@ def test_funnel_computes_the_sample_and_the_selection_and_labels_both_tiers(tmp_
     assert fast[fast_vertical_column("fc")].isna().all()
     with Store(folder / "cache.sqlite") as s:
         assert s.count(fast_tier_hash(camp.compute)) == 8
+    # status counts both tiers: every candidate's fast-tier point, the full tier of the chosen
+    from redoxfront.compute.status import compute_status
+
+    st = compute_status(camp)
+    assert len(st.fast_tier) == 8 and sorted(st.done) == sorted(table["id"]) and len(st.pending) == 8 - len(table)
 
 
 def test_funnel_on_the_vertical_potential(tmp_path):

@@ -13,7 +13,7 @@ import time
 import weakref
 from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
-from typing import Any, Callable, Iterator
+from typing import Any, Callable, Iterable, Iterator
 
 from typing import TYPE_CHECKING
 
@@ -555,16 +555,10 @@ def iter_compute(
             opened.append(Store(store_path))
         return opened[0]
 
-    def items() -> Iterator[tuple[Candidate, dict | None]]:
-        for chunk in chunked(ordered, chunk_size):
-            if local:
-                yield from ((c, None) for c in chunk)
-            else:
-                yield from ((c, _stored_states(store(), c, settings)) for c in chunk)
-
+    items = ((c, None) for c in ordered) if local else cluster_items(ordered, store, settings, chunk_size)
     key_hash = settings.result_hash()
     try:
-        for out in map_tasks(_run_job, items(), args=task_args, workers=workers,
+        for out in map_tasks(_run_job, items, args=task_args, workers=workers,
                              threads_per_worker=settings.threads_per_worker, dask_address=dask_address,
                              progress=progress, desc="redox states", total=len(ordered)):
             if not local:  # local workers wrote their states already
@@ -575,6 +569,16 @@ def iter_compute(
     finally:
         for s in opened:
             s.close()
+
+
+def cluster_items(candidates: Iterable[Candidate], store: Callable[[], Store], settings: ComputeSettings,
+                  chunk_size: int = DRIVER_CHUNK) -> Iterator[tuple[Candidate, dict[str, dict]]]:
+    """(candidate, its stored payloads) for a cluster run, looked up ``chunk_size`` candidates at
+    a time as the tasks are drawn (lazily: never the whole store up front). ``store`` opens the
+    store on first use."""
+    for chunk in chunked(candidates, chunk_size):
+        found = [_stored_states(store(), c, settings) for c in chunk]
+        yield from zip(chunk, found)
 
 
 def compute_candidates(
@@ -794,5 +798,5 @@ def _compute_campaign(campaign: Campaign, candidates_path: str | Path | None, ou
 __all__ = [
     "CONFORMER_ENTRY", "CandidateOutcome", "ComputeReport", "checkpoint_name", "failure_text",
     "vertical_entry", "conformer_key", "candidate_row", "compute_campaign", "compute_candidate",
-    "compute_candidates", "candidate_task", "iter_compute",
+    "compute_candidates", "candidate_task", "cluster_items", "iter_compute",
 ]
