@@ -18,6 +18,9 @@ misses the cache and an unchanged one recomputes nothing. WAL journal mode lets
 several processes read while one writes; each write is its own short transaction,
 so a killed run loses at most the conformer it was optimising: finished conformers of a
 state in progress are kept as ``<state>:conformer:<i>`` entries until the state is whole.
+A second table, ``rosters``, keeps the parsed candidate list of the newest candidates files
+(:mod:`redoxfront.compute.roster`) so ``status`` need not parse a large file again; it was added
+without a schema change (a store without it gains it when opened).
 """
 
 from __future__ import annotations
