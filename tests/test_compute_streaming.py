@@ -114,7 +114,7 @@ def test_status_reads_the_kept_candidate_list_and_parses_a_changed_file(tmp_path
     path = tmp_path / "inputs" / "candidates.csv"
     compute_campaign(camp, progress=False, describe=False)
     kept = load_roster(camp.store_path, roster_key(path, camp.compute))
-    assert kept is not None and [e.id for e in kept.entries] == ["m0", "m1"]
+    assert kept is not None and kept.ids == ["m0", "m1"] and len(kept.plans) == 1  # both neutral catholytes
     _, parsed_problems = read_candidates(path, camp.compute)
     st = compute_status(camp)
     assert st.done == ["m0", "m1"] and not st.pending and not st.failed

@@ -248,7 +248,7 @@ def fast_tier_table(campaign: Campaign, *, workers: int = 1, dask_address: str |
     from redoxfront.candidates.files import count_rows
     from redoxfront.candidates.structures import iter_candidates
     from redoxfront.compute.fast_tier import FastJob, run_fast_tier
-    from redoxfront.compute.roster import roster_entry, roster_key, save_roster
+    from redoxfront.compute.roster import RosterBuilder, roster_entry, roster_key, save_roster
 
     fs = funnel_settings(campaign)
     settings = campaign.compute
@@ -256,12 +256,12 @@ def fast_tier_table(campaign: Campaign, *, workers: int = 1, dask_address: str |
         campaign.path(campaign.inputs.candidates, "[inputs] candidates"))
     problems: list[Any] = []
     order: dict[str, int] = {}
-    entries = []
+    kept = RosterBuilder()
 
     def jobs() -> Any:
         for c in iter_candidates(path, settings, problems):
             order[c.id] = len(order)
-            entries.append(roster_entry(c))
+            kept.add(roster_entry(c))
             yield FastJob.of(c)
 
     pieces, rows = [], []
@@ -277,7 +277,7 @@ def fast_tier_table(campaign: Campaign, *, workers: int = 1, dask_address: str |
     del pieces, rows
     if len(fast):
         fast = fast.iloc[np.argsort(fast["id"].map(order).to_numpy(), kind="stable")].reset_index(drop=True)
-    save_roster(campaign.store_path, roster_key(path, settings), entries, problems)
+    save_roster(campaign.store_path, roster_key(path, settings), kept.roster(problems))
     return fast, problems
 
 

@@ -22,17 +22,14 @@ from redoxfront.candidates.structures import Candidate, candidate_states
 from redoxfront.engine.records import STATE_DISCHARGED
 from redoxfront.errors import InputError
 
-ROSTER_SCHEMA = 1
+ROSTER_SCHEMA = 2
 """Layout of a kept list; a new layout misses the old key and parses afresh."""
 
 
 @dataclass(frozen=True)
-class RosterEntry:
-    """What ``status`` needs of one candidate."""
+class Plan:
+    """The redox states of a candidate as the store names them, and the part each plays."""
 
-    id: str
-    smiles: str
-    """Canonical SMILES of the charge carrier (the store key)."""
     states: tuple[str, ...]
     """Store names of its redox states (chain order)."""
     names: tuple[str, ...]
@@ -42,10 +39,27 @@ class RosterEntry:
 
 
 @dataclass(frozen=True)
-class Roster:
-    """The good candidates of a file (file order) and its rejected rows."""
+class RosterEntry:
+    """What ``status`` needs of one candidate."""
 
-    entries: list[RosterEntry]
+    id: str
+    smiles: str
+    """Canonical SMILES of the charge carrier (the store key)."""
+    plan: Plan
+
+
+@dataclass(frozen=True)
+class Roster:
+    """The good candidates of a file (file order), column by column, and its rejected rows.
+
+    Candidates share a few plans (a library of neutral catholytes has one), so each candidate
+    holds the index of its plan in ``plans``.
+    """
+
+    ids: list[str]
+    smiles: list[str]
+    plan_of: list[int]
+    plans: list[Plan]
     problems: list[InputError]
 
 
@@ -67,18 +81,43 @@ def roster_entry(candidate: Candidate) -> RosterEntry:
     """A candidate's entry (parses its carrier once more for the redox states)."""
     plan = candidate_states(candidate)
     first = next(s for s in plan if s.name == STATE_DISCHARGED)
-    return RosterEntry(candidate.id, candidate.main_smiles, tuple(s.key for s in plan), tuple(s.name for s in plan),
-                       first.key)
+    return RosterEntry(candidate.id, candidate.main_smiles,
+                       Plan(tuple(s.key for s in plan), tuple(s.name for s in plan), first.key))
 
 
-def save_roster(store_path: str | Path, key: str, entries: Iterable[RosterEntry],
-                problems: Iterable[InputError]) -> None:
+class RosterBuilder:
+    """Gathers the list one candidate at a time (a driver streaming a file keeps only this)."""
+
+    def __init__(self) -> None:
+        self._index: dict[Plan, int] = {}
+        self.ids: list[str] = []
+        self.smiles: list[str] = []
+        self.plan_of: list[int] = []
+
+    def add(self, entry: RosterEntry) -> None:
+        self.ids.append(entry.id)
+        self.smiles.append(entry.smiles)
+        self.plan_of.append(self._index.setdefault(entry.plan, len(self._index)))
+
+    def roster(self, problems: Iterable[InputError]) -> Roster:
+        return Roster(self.ids, self.smiles, self.plan_of, list(self._index), list(problems))
+
+
+def make_roster(entries: Iterable[RosterEntry], problems: Iterable[InputError]) -> Roster:
+    """The column-wise list of ``entries``."""
+    builder = RosterBuilder()
+    for e in entries:
+        builder.add(e)
+    return builder.roster(problems)
+
+
+def save_roster(store_path: str | Path, key: str, roster: Roster) -> None:
     """Keep a parsed list in the store."""
     from redoxfront.compute.store import Store
 
-    payload = {"entries": [[e.id, e.smiles, list(e.states), list(e.names), e.discharged]
-                           for e in entries],
-               "problems": [[p.reason, p.row, p.field, p.source] for p in problems]}
+    payload = {"ids": roster.ids, "smiles": roster.smiles, "plan_of": roster.plan_of,
+               "plans": [[list(p.states), list(p.names), p.discharged] for p in roster.plans],
+               "problems": [[p.reason, p.row, p.field, p.source] for p in roster.problems]}
     with Store(store_path) as store:
         store.put_roster(key, payload)
 
@@ -93,8 +132,9 @@ def load_roster(store_path: str | Path, key: str) -> Roster | None:
         payload = store.get_roster(key)
     if payload is None:
         return None
-    return Roster([RosterEntry(i, s, tuple(k), tuple(n), d) for i, s, k, n, d in payload["entries"]],
+    return Roster(payload["ids"], payload["smiles"], payload["plan_of"],
+                  [Plan(tuple(k), tuple(n), d) for k, n, d in payload["plans"]],
                   [InputError(r, row=row, field=f, source=src) for r, row, f, src in payload["problems"]])
 
 
-__all__ = ["Roster", "RosterEntry", "load_roster", "roster_entry", "roster_key", "save_roster"]
+__all__ = ["Plan", "Roster", "RosterBuilder", "RosterEntry", "load_roster", "make_roster", "roster_entry", "roster_key", "save_roster"]

@@ -19,7 +19,7 @@ from pathlib import Path
 from redoxfront.campaign import Campaign
 from redoxfront.candidates.structures import iter_candidates
 from redoxfront.compute.fast_tier import chunked
-from redoxfront.compute.roster import Roster, load_roster, roster_entry, roster_key, save_roster
+from redoxfront.compute.roster import Roster, load_roster, make_roster, roster_entry, roster_key, save_roster
 from redoxfront.compute.step import checkpoint_name, failure_text
 from redoxfront.compute.store import Store
 from redoxfront.errors import InputError
@@ -40,6 +40,10 @@ class ComputeStatus:
     """Candidates whose fast-tier point is stored (a funnel run; docs/funnel.md)."""
 
 
+STATUS_CHUNK = 2000
+"""Molecules looked up per pass over the store."""
+
+
 def campaign_roster(campaign: Campaign, path: Path) -> Roster:
     """The parsed candidate list of ``path``: from the store when the file, the parsing settings
     and RDKit are unchanged, else parsed now (and kept for the next call)."""
@@ -49,10 +53,10 @@ def campaign_roster(campaign: Campaign, path: Path) -> Roster:
     if found is not None:
         return found
     problems: list[InputError] = []
-    entries = [roster_entry(c) for c in iter_candidates(path, settings, problems)]
+    roster = make_roster((roster_entry(c) for c in iter_candidates(path, settings, problems)), problems)
     if campaign.store_path.exists():
-        save_roster(campaign.store_path, key, entries, problems)
-    return Roster(entries, problems)
+        save_roster(campaign.store_path, key, roster)
+    return roster
 
 
 def compute_status(campaign: Campaign, *, candidates_path: str | Path | None = None) -> ComputeStatus:
@@ -67,35 +71,41 @@ def compute_status(campaign: Campaign, *, candidates_path: str | Path | None = N
     roster = campaign_roster(campaign, Path(path))
     status = ComputeStatus([], {}, [], [], roster.problems)
     if not campaign.store_path.exists():
-        status.pending.extend(e.id for e in roster.entries)
+        status.pending.extend(roster.ids)
         return status
     key_hash = settings.result_hash()
     fast_hash = fast_tier_hash(settings)
+    firsts = [checkpoint_name(p.discharged, 0) for p in roster.plans]
     with Store(campaign.store_path) as store:
-        for part in chunked(roster.entries, 2000):
-            smiles = [e.smiles for e in part]
+        for start in range(0, len(roster.ids), STATUS_CHUNK):
+            smiles = roster.smiles[start:start + STATUS_CHUNK]
             entries: dict[str, dict[str, str | None]] = {}
             for s, name, failed in store.entries_of(smiles, key_hash, failures=True):
                 entries.setdefault(s, {})[name] = failed
             fast = {s for s, name, _ in store.entries_of(smiles, fast_hash) if name.startswith(FAST_ENTRY_PREFIX)}
-            for e in part:
-                found = entries.get(e.smiles, {})
-                if e.smiles in fast:
-                    status.fast_tier.append(e.id)
-                failure = next((failure_text(name, {"failed": found[k]}) for k, name in zip(e.states, e.names)
-                                if k in found and found[k]), None)
-                stored = sum(k in found for k in e.states)
+            for cid, s, k in zip(roster.ids[start:start + STATUS_CHUNK], smiles,
+                                 roster.plan_of[start:start + STATUS_CHUNK]):
+                if s in fast:
+                    status.fast_tier.append(cid)
+                found = entries.get(s)
+                if not found:
+                    status.pending.append(cid)
+                    continue
+                plan = roster.plans[k]
+                failure = next((failure_text(name, {"failed": found[key]}) for key, name in zip(plan.states, plan.names)
+                                if found.get(key)), None)
+                stored = sum(key in found for key in plan.states)
                 # a first state interrupted between conformers also counts as partly done (the
                 # first state computed is the discharged one, in the middle of a bipolar chain)
-                stored += checkpoint_name(e.discharged, 0) in found
+                stored += firsts[k] in found
                 if failure:
-                    status.failed[e.id] = failure
-                elif stored == len(e.states):
-                    status.done.append(e.id)
+                    status.failed[cid] = failure
+                elif stored == len(plan.states):
+                    status.done.append(cid)
                 elif stored:
-                    status.partial.append(e.id)
+                    status.partial.append(cid)
                 else:
-                    status.pending.append(e.id)
+                    status.pending.append(cid)
     return status
 
 

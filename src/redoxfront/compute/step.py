@@ -746,7 +746,7 @@ def _compute_campaign(campaign: Campaign, candidates_path: str | Path | None, ou
                       describe: bool, only_ids: set[str] | None = None,
                       known_problems: list[InputError] | None = None) -> ComputeReport:
     from redoxfront.candidates.structures import iter_candidates
-    from redoxfront.compute.roster import roster_entry, roster_key, save_roster
+    from redoxfront.compute.roster import make_roster, roster_entry, roster_key, save_roster
 
     settings = campaign.compute
     path = Path(candidates_path) if candidates_path else campaign.path(campaign.inputs.candidates, "[inputs] candidates")
@@ -754,7 +754,7 @@ def _compute_campaign(campaign: Campaign, candidates_path: str | Path | None, ou
     candidates = list(iter_candidates(path, settings, problems, only_ids=only_ids))
     if only_ids is None:  # the whole file parsed: keep its list for `status`
         key = roster_key(path, settings)
-        save_roster(campaign.store_path, key, (roster_entry(c) for c in candidates), problems)
+        save_roster(campaign.store_path, key, make_roster((roster_entry(c) for c in candidates), problems))
     sections = {"sites": campaign.section("sites"), "descriptors": campaign.section("descriptors")}
     out = Path(out_path) if out_path else campaign.results_dir / "descriptors.csv"
     out.parent.mkdir(parents=True, exist_ok=True)
