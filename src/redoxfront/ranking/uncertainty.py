@@ -104,10 +104,22 @@ class Uncertain:
 
     def prob_at_least(self, u: np.ndarray, rows: np.ndarray) -> np.ndarray:
         """P(draw >= u) per objective: rows (r,), u (s, m) -> (r, s, m)."""
+        a = ndtr(-TRUNCATION_SD)
+        exact = ~(self.sd_low[rows].any(axis=0) | self.sd_high[rows].any(axis=0))
+        if exact.any():  # objectives without uncertainty: a step, the same numbers without ndtr
+            out = np.empty((len(rows), len(u), u.shape[1]))
+            below = (ndtr(TRUNCATION_SD) - ndtr(-TRUNCATION_SD)) / (1.0 - 2.0 * a)
+            above = (ndtr(TRUNCATION_SD) - ndtr(TRUNCATION_SD)) / (1.0 - 2.0 * a)
+            for c in np.flatnonzero(exact):
+                out[:, :, c] = np.where(u[None, :, c] - self.mean[rows][:, None, c] > 0, above, below)
+            rest = np.flatnonzero(~exact)
+            if len(rest):
+                out[:, :, rest] = Uncertain(self.mean[:, rest], self.sd_low[:, rest],
+                                            self.sd_high[:, rest]).prob_at_least(u[:, rest], rows)
+            return out
         mu = self.mean[rows][:, None, :]
         s_lo = self.sd_low[rows][:, None, :]
         s_hi = self.sd_high[rows][:, None, :]
-        a = ndtr(-TRUNCATION_SD)
         d = u[None, :, :] - mu
         sd = np.where(d > 0, s_hi, s_lo)
         with np.errstate(divide="ignore", invalid="ignore"):
