@@ -202,10 +202,21 @@ def test_tables_written_by_a_second_process_are_whole_and_failures_are_one_line(
     assert not [p.name for p in tmp_path.iterdir() if p.name.startswith(".")]  # no temporary left
     (tmp_path / "real").mkdir()
     (tmp_path / "linked").symlink_to(tmp_path / "real")
-    wait = outputs.start_csv_writes([(t, tmp_path / "linked" / "ranking.csv")])
-    with pytest.raises(DataError, match=r"writing ranking.csv failed: DataError: .*is a link to"):
+    with pytest.raises(DataError, match=r"is a link to"):  # refused before any process writes a part
+        outputs.start_csv_writes([(t, tmp_path / "linked" / "ranking.csv")])
+    assert not list((tmp_path / "real").iterdir())
+
+    class Unprintable:
+        def __str__(self) -> str:
+            raise ValueError("no text for this value")
+
+    bad = t.assign(note=[Unprintable() if i == 150 else "ok" for i in range(len(t))])
+    (tmp_path / "ranking.csv").write_text("id\nold\n")
+    wait = outputs.start_csv_writes([(bad, tmp_path / "ranking.csv")])
+    with pytest.raises(DataError, match=r"writing ranking.csv failed: ValueError: no text for this value"):
         wait()
-    assert not (tmp_path / "real" / "ranking.csv").exists()
+    assert (tmp_path / "ranking.csv").read_text() == "id\nold\n"  # the old file stays whole
+    assert not [p.name for p in tmp_path.iterdir() if p.name.startswith(".")]  # no part left
 
 
 def test_write_csv_columns_of_few_values_write_what_pandas_writes(tmp_path: Path) -> None:

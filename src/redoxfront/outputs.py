@@ -20,6 +20,7 @@ import contextlib
 import csv
 import json
 import os
+import shutil
 import tempfile
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Callable, Iterable, Iterator, Sequence
@@ -37,6 +38,13 @@ def _default_mode() -> int:
     return 0o666 & ~umask
 
 
+def _refuse_linked_folder(target: Path) -> None:
+    """A result file goes only into a real folder: results/figures -> /elsewhere would carry the write out."""
+    if target.parent.is_symlink():
+        raise DataError(f"{target.parent} is a link to {target.parent.resolve()}; result files are "
+                        "written only into real folders of the campaign: remove the link")
+
+
 @contextlib.contextmanager
 def replacing(path: str | Path) -> Iterator[Path]:
     """Yield a temporary path beside ``path``; on success rename it over ``path``.
@@ -46,9 +54,7 @@ def replacing(path: str | Path) -> Iterator[Path]:
     from the suffix (matplotlib, RDKit) still do.
     """
     target = Path(path)
-    if target.parent.is_symlink():  # results/figures -> /elsewhere would carry the write out
-        raise DataError(f"{target.parent} is a link to {target.parent.resolve()}; result files are "
-                        "written only into real folders of the campaign: remove the link")
+    _refuse_linked_folder(target)
     target.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp_name = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=f".tmp{target.suffix}")
     os.close(fd)
@@ -166,11 +172,12 @@ def _column_texts(series: "pd.Series") -> list[str]:
     return ["" if gap else _quoted(v if isinstance(v, str) else str(v)) for v, gap in zip(values, missing.tolist())]
 
 
-def _write_plain_csv(table: "pd.DataFrame", path: Path) -> None:
+def _write_plain_csv(table: "pd.DataFrame", path: Path, header: bool = True) -> None:
     """Write ``table`` without index to ``path`` as :func:`write_csv` describes."""
     newline = os.linesep
     with open(path, "w", encoding="utf-8", newline="") as fh:
-        fh.write(",".join(_quoted(c) for c in table.columns) + newline)
+        if header:
+            fh.write(",".join(_quoted(c) for c in table.columns) + newline)
         for start in range(0, len(table), CSV_BLOCK_ROWS):
             block = table.iloc[start:start + CSV_BLOCK_ROWS]
             columns_text = [_column_texts(block[c]) for c in table.columns]
@@ -178,55 +185,94 @@ def _write_plain_csv(table: "pd.DataFrame", path: Path) -> None:
 
 
 BACKGROUND_ROWS = 20_000
-"""Tables of at least this many rows in all are written by :func:`start_csv_writes` in a
-forked process beside the caller's further work (the drawing of figures)."""
+"""Tables of at least this many rows in all are written by :func:`start_csv_writes` in
+forked processes beside the caller's further work (the drawing of figures)."""
+WRITERS = 2
+"""Forked processes that write the row halves of a large table at once (2 cores)."""
 
 
 def start_csv_writes(items: "Sequence[tuple[pd.DataFrame, str | Path]]") -> Callable[[], None]:
-    """Start writing each ``(table, path)`` with :func:`write_csv`; return ``wait``, which
+    """Start writing each ``(table, path)`` as :func:`write_csv` does; return ``wait``, which
     returns once every file is in place and raises :class:`DataError` if a write failed.
 
-    Large tables (:data:`BACKGROUND_ROWS` rows in all) are written by a child process forked
-    from this one, so that a second core formats the text while this process goes on (the
-    child sees the tables as they are at the fork; nothing is pickled). Where fork is not
-    available, or inside a daemonic worker, or for small tables, the writes happen here and
-    ``wait`` has nothing to do. Each file is still written whole or not at all.
+    Large tables (:data:`BACKGROUND_ROWS` rows in all) are written by :data:`WRITERS` child
+    processes forked from this one, each formatting a share of the rows into a part file
+    beside the target, while this process goes on (the children see the tables as they are
+    at the fork; nothing is pickled); ``wait`` joins the parts into a temporary file and
+    renames it over the target, so each file is still written whole or not at all, with the
+    bytes of :func:`write_csv`. Where fork is not available, inside a daemonic worker, or for
+    small tables, the writes happen here and ``wait`` has nothing to do.
     """
     import multiprocessing
 
     items = [(table, Path(path)) for table, path in items]
+    for _, path in items:
+        _refuse_linked_folder(path)
     total = sum(len(table) for table, _ in items)
     if (total < BACKGROUND_ROWS or "fork" not in multiprocessing.get_all_start_methods()
             or multiprocessing.current_process().daemon):
         for table, path in items:
             write_csv(table, path)
         return lambda: None
+    jobs: list[list[tuple[pd.DataFrame, Path, bool]]] = [[] for _ in range(WRITERS)]
+    parts: dict[Path, list[Path]] = {}
+    for table, path in items:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        shares = WRITERS if len(table) >= BACKGROUND_ROWS // 2 else 1
+        cuts = [len(table) * k // shares for k in range(shares + 1)]
+        parts[path] = []
+        for k in range(shares):
+            part = path.parent / f".{path.name}.part{k}.tmp"
+            parts[path].append(part)
+            jobs[k].append((table.iloc[cuts[k]:cuts[k + 1]], part, k == 0))
     ctx = multiprocessing.get_context("fork")
-    receive, send = ctx.Pipe(duplex=False)
-    child = ctx.Process(target=_write_in_child, args=(items, send), name="redoxfront-csv-writer")
-    child.start()
-    send.close()
+    children = []
+    for k in range(WRITERS):
+        if jobs[k]:
+            receive, send = ctx.Pipe(duplex=False)
+            child = ctx.Process(target=_write_in_child, args=(jobs[k], send), name=f"redoxfront-csv-writer-{k}")
+            child.start()
+            send.close()
+            children.append((child, receive))
     names = ", ".join(path.name for _, path in items)
 
     def wait() -> None:
+        problems = []
+        for child, receive in children:
+            try:
+                problems.append(receive.recv())
+            except EOFError:
+                problems.append("the writing process ended without a word")
+            finally:
+                receive.close()
+                child.join()
+            if child.exitcode != 0 and not problems[-1]:
+                problems[-1] = f"exit code {child.exitcode}"
         try:
-            problem = receive.recv()
-        except EOFError:
-            problem = "the writing process ended without a word"
+            problem = next((p for p in problems if p), "")
+            if problem:
+                raise DataError(f"writing {names} failed: {problem}")
+            for path, pieces in parts.items():
+                with replacing(path) as tmp, open(tmp, "wb") as out:
+                    for piece in pieces:
+                        with open(piece, "rb") as src:
+                            shutil.copyfileobj(src, out, 1 << 22)
         finally:
-            receive.close()
-            child.join()
-        if problem or child.exitcode != 0:
-            raise DataError(f"writing {names} failed: {problem or f'exit code {child.exitcode}'}")
+            for pieces in parts.values():
+                for piece in pieces:
+                    piece.unlink(missing_ok=True)
 
     return wait
 
 
-def _write_in_child(items: "list[tuple[pd.DataFrame, Path]]", send: Any) -> None:
-    """Body of the writing process: write, then report '' or the one-line reason."""
+def _write_in_child(jobs: "list[tuple[pd.DataFrame, Path, bool]]", send: Any) -> None:
+    """Body of a writing process: write its parts, then report '' or the one-line reason."""
     try:
-        for table, path in items:
-            write_csv(table, path)
+        for table, part, header in jobs:
+            if _plain_columns(table):
+                _write_plain_csv(table, part, header=header)
+            else:
+                table.to_csv(part, index=False, header=header)
         send.send("")
     except BaseException as exc:  # noqa: BLE001 - the parent turns it into one DataError line
         send.send(f"{type(exc).__name__}: {exc}".splitlines()[0])
