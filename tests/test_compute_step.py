@@ -16,15 +16,9 @@ from redoxfront import columns as C
 from redoxfront.campaign import ComputeSettings, ConformerSettings, load_campaign
 from redoxfront.candidates.structures import candidate_states, parse_candidate
 from redoxfront.compute.status import compute_status
-from redoxfront.compute.step import (
-    CONFORMER_ENTRY,
-    candidate_row,
-    candidate_task,
-    compute_campaign,
-    compute_candidate,
-    compute_candidates,
-    conformer_key,
-)
+from redoxfront.compute.candidate import CONFORMER_ENTRY, compute_candidate, conformer_key
+from redoxfront.compute.rows import candidate_row
+from redoxfront.compute.step import candidate_task, compute_campaign, compute_candidates
 from redoxfront.compute.store import Store
 from redoxfront.engine.potentials import potential_v, reduction_free_energy_ev
 

@@ -8,7 +8,8 @@ import pytest
 from redoxfront import columns as C
 from redoxfront.campaign import ComputeSettings, ConformerSettings
 from redoxfront.candidates.structures import candidate_states, parse_candidate
-from redoxfront.compute.step import compute_candidate, compute_candidates
+from redoxfront.compute.candidate import compute_candidate
+from redoxfront.compute.step import compute_candidates
 from redoxfront.compute.store import SCHEMA_VERSION, Store
 from redoxfront.errors import RedoxfrontError
 

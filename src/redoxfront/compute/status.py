@@ -20,7 +20,7 @@ from redoxfront.campaign import Campaign
 from redoxfront.candidates.structures import iter_candidates
 from redoxfront.compute.fast_tier import chunked
 from redoxfront.compute.roster import Roster, load_roster, make_roster, roster_entry, roster_key, save_roster
-from redoxfront.compute.step import checkpoint_name, failure_text
+from redoxfront.compute.candidate import checkpoint_name, failure_text
 from redoxfront.compute.store import Store
 from redoxfront.errors import InputError
 

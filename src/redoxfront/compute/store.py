@@ -11,7 +11,7 @@ each optimised state is renamed from the charge and spin it holds, its vertical 
 stored failures and unfinished conformers are dropped. A store of a newer schema is refused.
 A candidate's RDKit
 conformer ensemble is stored the same way under the name ``conformer_ensemble`` and a key
-of the conformer settings alone (:func:`redoxfront.compute.step.conformer_key`). The hash
+of the conformer settings alone (:func:`redoxfront.compute.candidate.conformer_key`). The hash
 covers every setting that changes energies or geometries
 (:meth:`~redoxfront.campaign.ComputeSettings.result_hash`), so a changed setting
 misses the cache and an unchanged one recomputes nothing. WAL journal mode lets
