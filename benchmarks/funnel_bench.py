@@ -56,7 +56,8 @@ from targets import finish, ratio_to_target  # noqa: E402
 SUBSTITUENTS = ["H", "C", "CC", "CCC", "C(C)C", "F", "Cl", "Br", "OC", "OCC", "SC", "N(C)C", "C#N", "C=O",
                 "C(C)=O", "CO", "NC=O", "C(N)=O"]
 SCAFFOLD = "COc1c([*:1])c([*:2])c(OCC)c([*:3])c1[*:4]"
-"""Invented scaffold: 1-ethoxy-4-methoxybenzene with four sites (no symmetry: 18^4 = 104,976 members)."""
+"""Invented scaffold: 1-ethoxy-4-methoxybenzene with four sites: 18^4 = 104,976 combinations, 52,497 distinct
+molecules (the mirror through the two alkoxy carbons swaps sites 1 and 4, 2 and 3)."""
 LIBRARY_SIZE = 100_000
 
 

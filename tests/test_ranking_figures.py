@@ -87,3 +87,16 @@ def test_a_large_library_draws_its_grey_cloud_as_one_image_and_the_front_as_mark
     assert (tmp_path / "front.svg").stat().st_size < 1_000_000
     pairs = plot_pairwise(t, ("cell_voltage", "molar_mass"), tmp_path / "pairs.svg").read_text()
     assert pairs.count("<image") >= 1 and pairs.count("<use ") < 200
+
+
+def test_log_axis_ticks_are_plain_numbers_or_unicode_powers_without_mathtext(tmp_path):
+    from redoxfront.figure_style import log_axis, plain_power_of_ten, plt, save_figure
+
+    # common practice, no source: 10^4 written with a superscript exponent; -3 uses the superscript minus
+    assert [plain_power_of_ten(v) for v in (1e-3, 0.01, 1.0, 1000.0, 1e4, 3e5, 0.0)] == [
+        "10\u207b\u00b3", "0.01", "1", "1000", "10\u2074", "3\u00d710\u2075", ""]
+    fig, ax = plt.subplots()
+    ax.plot([0.5, 2e5], [1, 2])
+    log_axis(ax, "x")
+    svg = save_figure(fig, tmp_path / "log.svg").read_text()
+    assert ax.get_xscale() == "log" and "10\u2075" in svg and "1000" in svg

@@ -14,6 +14,7 @@ Colour is never the only signal: candidates that need care have their own marker
 
 from __future__ import annotations
 
+import math
 import re
 from pathlib import Path
 
@@ -77,6 +78,34 @@ def style_axes(ax: "plt.Axes") -> None:
     ax.tick_params(colors=INK, labelsize=TICK_SIZE)
     ax.grid(True, which="major", color=GRID, linewidth=0.6)
     ax.set_axisbelow(True)
+
+
+_SUPERSCRIPT = str.maketrans("-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079")
+
+
+def plain_power_of_ten(value: float) -> str:
+    """Tick text of a log axis: 0.01 to 1000 written out, other powers as 10 with a Unicode
+    superscript exponent (10\u2074, 10\u207b\u00b3), which needs no mathtext."""
+    if value <= 0 or not math.isfinite(value):
+        return ""
+    exponent = math.floor(math.log10(value) + 1e-9)
+    if -2 <= exponent <= 3:
+        return f"{value:g}"
+    mantissa = value / 10.0 ** exponent
+    head = "" if abs(mantissa - 1.0) < 1e-6 else f"{mantissa:g}\u00d7"
+    return f"{head}10{str(exponent).translate(_SUPERSCRIPT)}"
+
+
+def log_axis(ax: "plt.Axes", which: str) -> None:
+    """Put the ``which`` ('x' or 'y') axis of ``ax`` on a log scale with plain tick labels
+    (0.1, 1, 10, 100) instead of the default powers of ten: easier to read for half-lives in
+    hours, and no mathtext to typeset (about 1 s on a large ranking)."""
+    from matplotlib.ticker import FuncFormatter, NullFormatter
+
+    (ax.set_xscale if which == "x" else ax.set_yscale)("log")
+    axis = ax.xaxis if which == "x" else ax.yaxis
+    axis.set_major_formatter(FuncFormatter(lambda value, _pos: plain_power_of_ten(value)))
+    axis.set_minor_formatter(NullFormatter())
 
 
 def plain_text(text: object) -> str:

@@ -33,6 +33,7 @@ from redoxfront.figure_style import (
     MUTED,
     SERIES,
     TITLE_SIZE,
+    log_axis,
     plain_text,
     plt,
     save_figure,
@@ -205,7 +206,7 @@ def plot_front(table: pd.DataFrame, objectives: Sequence[str], path: str | Path)
     fig, ax = plt.subplots(figsize=(8.0, 5.0))
     style_axes(ax)
     if xname == "half_life":
-        ax.set_xscale("log")
+        log_axis(ax, "x")
     if len(data):
         first = data[data[col.PARETO_RANK] == 1]
         rest = data[data[col.PARETO_RANK] != 1]
@@ -252,9 +253,9 @@ def plot_pairwise(table: pd.DataFrame, objectives: Sequence[str], path: str | Pa
             first = data[data[col.PARETO_RANK] == 1]
             _points(ax, data[data[col.PARETO_RANK] != 1], xcol, ycol, size=12, coloured=False, zorder=2)
             _points(ax, first, xcol, ycol, size=30, coloured=True, zorder=3)
-        for c_, setter in ((xcol, ax.set_xscale), (ycol, ax.set_yscale)):
+        for c_, which in ((xcol, "x"), (ycol, "y")):
             if c_ == col.HALF_LIFE:
-                setter("log")
+                log_axis(ax, which)
         ax.set_xlabel(LABELS.get(xcol, xcol), fontsize=LABEL_SIZE - 1, color=INK)
         ax.set_ylabel(LABELS.get(ycol, ycol), fontsize=LABEL_SIZE - 1, color=INK)
     if len(data):
