@@ -71,11 +71,15 @@ def test_unknown_engine():
 def test_fast_knobs_change_the_start_not_the_answer():
     z, x = _geometry("COc1ccc(OC)cc1")
     default = TbliteEngine().compute(z, x, 0, 0)
-    fast = make_engine("tblite", "GFN2-xTB", "acetonitrile", accuracy=10.0, guess="eeq").compute(z, x, 0, 0)
-    # both SCCs converge to the same GFN2-xTB solution: energy within 1e-4 Eh and frontier orbitals within
-    # 0.005 eV at accuracy factor 10 (tblite's convergence thresholds scale with it; common practice, no source)
-    assert fast.energy_eh == pytest.approx(default.energy_eh, abs=1e-4)
-    assert fast.homo_eh * 27.211386 == pytest.approx(default.homo_eh * 27.211386, abs=5e-3)
-    assert fast.lumo_eh * 27.211386 == pytest.approx(default.lumo_eh * 27.211386, abs=5e-3)
+    from redoxfront.compute.fast_tier import ENGINE_ACCURACY, ENGINE_GUESS
+
+    fast = make_engine("tblite", "GFN2-xTB", "acetonitrile", accuracy=ENGINE_ACCURACY,
+                       guess=ENGINE_GUESS).compute(z, x, 0, 0)
+    # both SCCs converge to the same GFN2-xTB solution: energy within 1e-3 Eh and frontier orbitals within
+    # 0.02 eV at the fast tier's accuracy factor (tblite's convergence thresholds scale with it; common
+    # practice, no source)
+    assert fast.energy_eh == pytest.approx(default.energy_eh, abs=1e-3)
+    assert fast.homo_eh * 27.211386 == pytest.approx(default.homo_eh * 27.211386, abs=0.02)
+    assert fast.lumo_eh * 27.211386 == pytest.approx(default.lumo_eh * 27.211386, abs=0.02)
     with pytest.raises(SettingsError, match="unknown start guess 'huckel'; allowed: sad, eeq"):
         make_engine("tblite", "GFN2-xTB", None, guess="huckel")
