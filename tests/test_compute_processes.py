@@ -57,6 +57,21 @@ def _alive(pid: int) -> bool:
 
 
 @pytest.mark.skipif(not sys.platform.startswith("linux"), reason="reads /proc")
+def _kill_and_watch(proc: subprocess.Popen, pids: list[int], limit_s: float) -> tuple[float, list[int]]:
+    """Kill ``proc`` with SIGKILL, wait up to ``limit_s`` for ``pids`` to end; return the seconds
+    waited and the pids still alive (killed here, so a failing check leaves nothing running)."""
+    proc.send_signal(signal.SIGKILL)
+    proc.wait()
+    t0 = time.time()
+    while time.time() - t0 < limit_s and any(_alive(p) for p in pids):
+        time.sleep(0.05)
+    exit_s = time.time() - t0
+    left = [p for p in pids if _alive(p)]
+    for p in left:
+        os.kill(p, signal.SIGKILL)
+    return exit_s, left
+
+
 def test_pool_workers_exit_when_the_main_process_is_killed(tmp_path: Path) -> None:
     # enough work that both workers are busy when the main process is killed
     folder = _campaign(tmp_path, ["CCCCOc1ccc(OCCCC)cc1C(C)(C)C", "CCCOc1ccc(OCCC)c(C)c1C",
@@ -70,15 +85,7 @@ def test_pool_workers_exit_when_the_main_process_is_killed(tmp_path: Path) -> No
         time.sleep(0.1)
     assert len(workers) == 2, "the pool did not start two workers"
     time.sleep(1.5)  # let them get into their work
-    proc.send_signal(signal.SIGKILL)
-    proc.wait()
-    t0 = time.time()
-    while time.time() - t0 < 10 and any(_alive(w) for w in workers):
-        time.sleep(0.05)
-    exit_s = time.time() - t0
-    left = [w for w in workers if _alive(w)]
-    for w in left:  # do not leave them running if the check fails
-        os.kill(w, signal.SIGKILL)
+    exit_s, left = _kill_and_watch(proc, workers, 10)
     # common practice, no source: an orphaned worker must not outlive its parent
     assert not left, f"{len(left)} worker(s) still running 10 s after the main process was killed"
     assert exit_s < 2.0  # the kernel's parent-death signal, or at worst the 0.5 s check
@@ -177,15 +184,7 @@ def test_local_dask_workers_exit_when_the_main_process_is_killed(tmp_path: Path)
     time.sleep(2.0)  # let the workers get their tasks
     below = _descendants(proc.pid)
     assert proc.poll() is None and len(below) >= 3, "the cluster's workers did not start"
-    proc.send_signal(signal.SIGKILL)
-    proc.wait()
-    t0 = time.time()
-    while time.time() - t0 < 15 and any(_alive(p) for p in below):
-        time.sleep(0.05)
-    exit_s = time.time() - t0
-    left = [p for p in below if _alive(p)]
-    for p in left:  # do not leave them running if the check fails
-        os.kill(p, signal.SIGKILL)
+    exit_s, left = _kill_and_watch(proc, below, 15)
     # common practice, no source: an orphaned worker must not outlive the run that started it
     assert not left, f"{len(left)} process(es) of the local cluster still running 15 s after the main process was killed"
     assert exit_s < 3.0  # the worker's 0.5 s check of its parent
