@@ -229,3 +229,63 @@ def test_write_csv_columns_of_few_values_write_what_pandas_writes(tmp_path: Path
     assert ours == (tmp_path / "pandas.csv").read_bytes()  # pandas (PyPI reference) as the cross-check
     zeros = pd.DataFrame({"id": [f"c{i}" for i in range(n)], "v": np.tile([0.0, -0.0], n // 2)})
     assert write_csv(zeros, tmp_path / "z.csv").read_text().splitlines()[1:3] == ["c0,0.0", "c1,-0.0"]
+
+
+def _float_edges() -> np.ndarray:
+    """Doubles over every decade (subnormals to the largest), both sides of each power of ten (where
+    repr and Arrow switch notation: 1e-4, 1e-5, 1e-6, 1e-7, 1e10, 1e16, 1e21), integral values,
+    17-significant-digit values, -0.0, infinities and NaN, with both signs."""
+    rng = np.random.default_rng(5)
+    powers = 10.0 ** np.arange(-323, 309)
+    with np.errstate(over="ignore"):
+        x = np.concatenate([
+            powers, np.nextafter(powers, 0), np.nextafter(powers, np.inf), powers * 1.2345678901234567,
+            rng.uniform(1, 10, len(powers)) * powers,
+            np.round(rng.uniform(0, 1, 200) * 10.0 ** rng.integers(0, 17, 200)),  # integral values
+            [0.0, -0.0, np.inf, -np.inf, np.nan, 5e-324, 2.2250738585072014e-308, 1.7976931348623157e308,
+             1e-4, 1e-5, 1e-7, 9.999999999999999e-5, 1e16, 9.999999999999998e15, 1e21, 2.0 ** 53,
+             0.1, 0.30000000000000004, 1 / 3, 12345678901.234568, 1.5e-05, 7e-06]])
+    signs = np.where(rng.random(len(x)) < 0.5, -1.0, 1.0)
+    return np.concatenate([x, -x, x * signs])
+
+
+def test_write_csv_floats_of_every_magnitude_write_what_pandas_writes_and_read_back(tmp_path: Path) -> None:
+    import csv
+
+    from redoxfront import outputs
+
+    x = _float_edges()
+    n = len(x)
+    text = [None if i % 11 == 0 else ["inv-1", 'say "x"', "a, b", "two\nlines", "", "1e3", "plain"][i % 7]
+            for i in range(n)]
+    t = pd.DataFrame({
+        "value": x, "id": pd.array(text, dtype="str"), "note": pd.array(text, dtype="string"),
+        "count": np.arange(n, dtype=np.int64) - n // 2, "flag": np.arange(n) % 3 == 0,
+        "pick_order": pd.array([i if i % 5 else None for i in range(n)], dtype="Int64"),
+        "knee": pd.array([None if i % 4 == 0 else bool(i % 2) for i in range(n)], dtype="boolean"),
+    })
+    assert outputs._arrow_floats_match_repr()  # the Arrow route is the one under test, not the repr fallback
+    ours = write_csv(t, tmp_path / "ours.csv").read_bytes()
+    t.to_csv(tmp_path / "pandas.csv", index=False)
+    # pandas (PyPI reference library) DataFrame.to_csv(index=False) as the external reference: same bytes
+    assert ours == (tmp_path / "pandas.csv").read_bytes()
+    with (tmp_path / "ours.csv").open(newline="", encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    back = np.array([float(r["value"]) if r["value"] else np.nan for r in rows])
+    # common practice, no source: the shortest round-trip text reads back to the same double, bit for bit
+    assert np.array_equal(back.view(np.uint64)[~np.isnan(x)], x.view(np.uint64)[~np.isnan(x)])
+    assert np.array_equal(np.isnan(back), np.isnan(x)) and len(rows) == n
+    assert [r["note"] for r in rows] == [v if v is not None else "" for v in text]
+
+
+def test_write_csv_quotes_a_lone_carriage_return_so_the_row_reads_back(tmp_path: Path) -> None:
+    import csv
+
+    t = pd.DataFrame({"id": pd.array(["cr\rhere", "x"], dtype="str"), "note": ["a\rb", None], "n": [1, 2]})
+    data = write_csv(t, tmp_path / "t.csv").read_bytes()
+    # here the writer keeps its own rule rather than pandas' (whose csv module on Python 3.11 quotes
+    # only the line terminator's characters, so a lone CR splits the row on reading)
+    assert data == b'id,note,n' + os.linesep.encode() + b'"cr\rhere","a\rb",1' + os.linesep.encode() + b"x,,2" + os.linesep.encode()
+    with (tmp_path / "t.csv").open(newline="", encoding="utf-8") as fh:
+        # Python's csv module (standard library) as the reader: two rows of three fields
+        assert list(csv.reader(fh)) == [["id", "note", "n"], ["cr\rhere", "a\rb", "1"], ["x", "", "2"]]

@@ -98,9 +98,10 @@ def write_csv(table: "pd.DataFrame", path: str | Path, **to_csv: Any) -> Path:
     With no other options the text is that of ``DataFrame.to_csv(index=False)`` (same
     quoting, floats written by ``repr``: the shortest text that reads back to the same
     float, so every value round-trips exactly; missing values as empty fields), made
-    column by column in row blocks, several times faster than pandas for wide float tables
-    and with bounded memory. Options, or a column type it does not know, go through
-    ``DataFrame.to_csv``.
+    column by column in row blocks by ``pyarrow.compute`` (about ten times faster than pandas
+    for wide float tables) and with bounded memory. Options, or a column type it does not know,
+    go through ``DataFrame.to_csv``. One difference from pandas on purpose: a text field with a
+    lone carriage return is quoted (pandas leaves it bare, and the row then splits on reading).
     """
     to_csv.setdefault("index", False)
     with replacing(path) as tmp:
@@ -266,6 +267,7 @@ def _write_plain_csv(table: "pd.DataFrame", path: Path, header: bool = True) -> 
     rows is formatted column by column into Arrow string arrays, joined into lines by Arrow and
     written from the joined array's data buffer (no Python work per row or per value)."""
     import numpy as np
+    import pyarrow as pa
     import pyarrow.compute as pc
 
     newline = os.linesep
@@ -279,7 +281,8 @@ def _write_plain_csv(table: "pd.DataFrame", path: Path, header: bool = True) -> 
             lines = pc.binary_join_element_wise(*texts, ",", null_handling="replace", null_replacement="")
             lines = pc.binary_join_element_wise(lines, "", newline)
             _, offsets, data = lines.buffers()
-            bounds = np.frombuffer(offsets, dtype=np.int32)[[lines.offset, lines.offset + len(lines)]]
+            width = np.int64 if pa.types.is_large_string(lines.type) else np.int32
+            bounds = np.frombuffer(offsets, dtype=width)[[lines.offset, lines.offset + len(lines)]]
             fh.write(memoryview(data)[int(bounds[0]):int(bounds[1])])
 
 
