@@ -17,10 +17,14 @@ from __future__ import annotations
 import math
 import re
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import matplotlib
 
 from redoxfront.outputs import replacing
+
+if TYPE_CHECKING:
+    from matplotlib.transforms import Bbox
 
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
@@ -126,10 +130,24 @@ def save_figure(fig: "plt.Figure", path: str | Path, *, dpi: int = 130, crop: bo
     if not crop:
         fig.tight_layout()
     extra = {"metadata": _SVG_METADATA} if fmt == "svg" else {}
+    box = _drawn_box(fig) if crop else None
     with replacing(out) as tmp:
-        fig.savefig(tmp, dpi=dpi, format=fmt, bbox_inches="tight" if crop else None, **extra)
+        fig.savefig(tmp, dpi=dpi, format=fmt, bbox_inches=box, **extra)
     plt.close(fig)
     return out
+
+
+CROP_PAD_INCHES = 0.1
+"""Margin kept around what is drawn when a figure is cropped (matplotlib's own default)."""
+
+
+def _drawn_box(fig: "plt.Figure") -> "Bbox":
+    """What ``fig`` draws, in inches, plus :data:`CROP_PAD_INCHES`: the box that
+    ``savefig(bbox_inches="tight")`` finds, found by a layout pass that draws nothing (a
+    "tight" save lays the figure out by drawing it once in full first, image layers of
+    100,000 markers included)."""
+    fig.draw_without_rendering()
+    return fig.get_tightbbox(fig.canvas.get_renderer()).padded(CROP_PAD_INCHES)
 
 
 _PROLOG = re.compile(r"<\?xml[^>]*\?>|<!DOCTYPE[^>]*>|<!--.*?-->", re.S)

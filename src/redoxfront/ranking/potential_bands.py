@@ -91,15 +91,15 @@ def uncalibrated_interval(raw_v: np.ndarray, role: np.ndarray, n_electrons: np.n
     n_e = np.asarray(n_electrons, dtype=float)
     lo = np.full(raw.shape, np.nan)
     hi = np.full(raw.shape, np.nan)
+    cath = role.astype(str) == "catholyte"
     for kind in COUPLE_TYPES:
-        rows = np.array([couple_type(str(r)) == kind for r in role], dtype=bool)
+        rows = cath if kind == couple_type("catholyte") else ~cath
         if half_width_v is not None:
             lo[rows], hi[rows] = raw[rows] - half_width_v, raw[rows] + half_width_v
         else:
             lo[rows], hi[rows] = REFERENCE_SET_BANDS[kind].interval(raw[rows])
     two = n_e == 2
     widen = 0.5 * SECOND_STEP_OVERESTIMATE_V
-    cath = np.array([str(r) == "catholyte" for r in role], dtype=bool)
     lo = np.where(two & cath, lo - widen, lo)
     hi = np.where(two & ~cath, hi + widen, hi)
     flags = np.where(two, SECOND_STEP_FLAG, "")

@@ -20,7 +20,8 @@ import pandas as pd
 from redoxfront import columns as col
 from redoxfront.campaign import bounded
 from redoxfront.errors import DataError, SettingsError
-from redoxfront.outputs import read_header, read_table, start_csv_writes, write_json
+from redoxfront.forked import start_forked
+from redoxfront.outputs import BACKGROUND_ROWS, read_header, read_table, start_csv_writes, write_json
 from redoxfront.units import reference_label
 from redoxfront.ranking.objectives import OBJECTIVES
 from redoxfront.ranking.pareto import (
@@ -360,9 +361,19 @@ def _summary_and_figures(campaign: "Campaign", result: RankingResult, cell_setti
     from redoxfront.ranking.figures import plot_front, plot_pairwise  # noqa: I001
 
     fig_dir = out_dir / "figures"
-    plot_front(result.table, result.objectives, fig_dir / "front.svg")
+    pairwise = None
     if len(result.objectives) > 2:  # with two, the front figure is the only pair
-        plot_pairwise(result.table, result.objectives, fig_dir / "objectives_pairwise.svg")
+        def pairwise() -> None:
+            plot_pairwise(result.table, result.objectives, fig_dir / "objectives_pairwise.svg")
+    if pairwise is not None and len(result.table) >= BACKGROUND_ROWS:
+        # a large library: the second figure is drawn by a forked process beside this one
+        wait_for_pairwise = start_forked([[pairwise]], "drawing objectives_pairwise.svg")
+        plot_front(result.table, result.objectives, fig_dir / "front.svg")
+        wait_for_pairwise()
+    else:
+        plot_front(result.table, result.objectives, fig_dir / "front.svg")
+        if pairwise is not None:
+            pairwise()
     if aqueous is not None:
         from redoxfront.ranking.figures import plot_pourbaix
         from redoxfront.units import convert_potential, water_lines_v_vs_she

@@ -135,14 +135,16 @@ def _certainly_dominated(lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
     return _dominated_by_any(upper, front)
 
 
-def _likely_dominators(unc: Uncertain, pool: np.ndarray, k: int, neighbours: int = 24) -> np.ndarray:
+def _likely_dominators(unc: Uncertain, pool: np.ndarray, k: int, neighbours: int = 24,
+                       block: int = 4096) -> np.ndarray:
     """For every row, ``k`` rows of ``pool`` likely to dominate it.
 
     Objectives are scaled by their typical standard deviation; the ``neighbours`` pool
     points nearest to a point one scale unit above the row (a k-d tree query) are
     scored by the standardised shortfall of their means behind the row's (a normal-tail
     proxy of -log P(j dominates i)) and the best ``k`` kept. A row may get itself as a
-    filler, which is harmless: a point never dominates itself.
+    filler, which is harmless: a point never dominates itself. Rows are scored ``block`` at
+    a time (small temporaries, reused).
     """
     n, m = unc.mean.shape
     sd = 0.5 * (unc.sd_low + unc.sd_high)
@@ -152,16 +154,21 @@ def _likely_dominators(unc: Uncertain, pool: np.ndarray, k: int, neighbours: int
     z = unc.mean / scale
     nn = int(min(neighbours, len(pool)))
     k = max(1, min(k, nn))
-    _, near = cKDTree(z[pool]).query(z + 1.0, k=nn)
-    near = pool[np.asarray(near).reshape(n, nn)]
-    diff = unc.mean[near] - unc.mean[:, None, :]
-    both = np.sqrt(sd[near] ** 2 + sd[:, None, :] ** 2)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        zz = np.where(both > 0, diff / np.where(both > 0, both, 1.0), np.where(diff >= 0, np.inf, -np.inf))
-    score = -np.square(np.minimum(zz, 0.0)).sum(axis=2)
-    score[near == np.arange(n)[:, None]] = -np.inf
-    best = np.argsort(-score, axis=1, kind="stable")[:, :k]
-    return np.take_along_axis(near, best, axis=1)
+    tree = cKDTree(z[pool])
+    out = np.empty((n, k), dtype=np.int64)
+    for s in range(0, n, block):
+        rows = np.arange(s, min(n, s + block))
+        _, near = tree.query(z[rows] + 1.0, k=nn)
+        near = pool[np.asarray(near).reshape(len(rows), nn)]
+        diff = unc.mean[near] - unc.mean[rows, None, :]
+        both = np.sqrt(sd[near] ** 2 + sd[rows, None, :] ** 2)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            zz = np.where(both > 0, diff / np.where(both > 0, both, 1.0), np.where(diff >= 0, np.inf, -np.inf))
+        score = -np.square(np.minimum(zz, 0.0)).sum(axis=2)
+        score[near == rows[:, None]] = -np.inf
+        best = np.argsort(-score, axis=1, kind="stable")[:, :k]
+        out[rows] = np.take_along_axis(near, best, axis=1)
+    return out
 
 
 def _front_counts(sub: Uncertain, n_draws: int, rng: np.random.Generator, element_budget: int,
@@ -320,6 +327,12 @@ def objective_box(unc: Uncertain) -> tuple[np.ndarray, np.ndarray]:
     return lo, width * (1.0 + BOX_MARGIN)
 
 
+SCORE_BLOCK_ELEMENTS: int = 1_000_000
+"""Elements of the (candidate, sample point, objective) probabilities computed at once when
+picks are scored (about 8 MB: small enough to stay in the cache's neighbourhood and to be
+reused from the heap, block after block)."""
+
+
 def suggest_experiments(
     mean: np.ndarray,
     low: np.ndarray,
@@ -374,7 +387,7 @@ def suggest_experiments(
     if len(u) == 0:
         return np.zeros(0, dtype=np.int64), np.zeros(0)
     reach = np.empty((len(rows), len(u)), dtype=np.float32)
-    step = max(1, DEFAULT_ELEMENT_BUDGET // (len(u) * m * 4))
+    step = max(1, SCORE_BLOCK_ELEMENTS // (len(u) * m))  # small temporaries, reused block after block
     for s in range(0, len(rows), step):
         reach[s:s + step] = unc.prob_at_least(u, rows[s:s + step]).prod(axis=2)
     weight = np.ones(len(u), dtype=np.float32)

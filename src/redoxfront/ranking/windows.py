@@ -88,6 +88,16 @@ def window_flags(e_low: np.ndarray, e_high: np.ndarray, window: Window | None) -
     out = np.full(lo.shape, "", dtype=object)
     if window is None:
         return out
+    above = f"the window: above the oxidation limit {window.high_v:.2f} V ({window.source})"
+    below = f"the window: below the reduction limit {window.low_v:.2f} V ({window.source})"
+    known = np.isfinite(lo) & np.isfinite(hi)
+    crosses_high = known & (hi > window.high_v)
+    crosses_low = known & ~crosses_high & (lo < window.low_v)  # a limit crossed above is named first
+    out[crosses_high & (lo > window.high_v)] = "outside " + above
+    out[crosses_high & ~(lo > window.high_v)] = "may be outside " + above
+    out[crosses_low & (hi < window.low_v)] = "outside " + below
+    out[crosses_low & ~(hi < window.low_v)] = "may be outside " + below
+    return out
     for r in range(lo.size):
         if not (np.isfinite(lo[r]) and np.isfinite(hi[r])):
             continue
