@@ -81,7 +81,7 @@ def fast_tier_end_to_end(csv: Path, out: Path, store: Path, settings: ComputeSet
 
     from redoxfront.candidates.structures import read_candidates
     from redoxfront.compute.fast_tier import FAST_STATUS, FastJob, run_fast_tier
-    from redoxfront.outputs import write_csv
+    from redoxfront.csv_tables import write_csv
 
     t0 = time.perf_counter()
     cands, _ = read_candidates(csv, settings)
@@ -214,7 +214,7 @@ def driver_pass(folder: Path, workers: int) -> None:
     from redoxfront.campaign import load_campaign
     from redoxfront.compute.fast_tier import FAST_STATUS
     from redoxfront.compute.funnel import fast_tier_table
-    from redoxfront.outputs import write_csv
+    from redoxfront.csv_tables import write_csv
 
     t0 = time.perf_counter()
     camp = load_campaign(folder)

@@ -12,7 +12,8 @@ import graphlib
 from pathlib import Path
 
 PACKAGE_ROOT = Path(__file__).resolve().parents[1] / "src" / "redoxfront"
-TOP_LEVEL_MODULES = {"__init__", "campaign", "cli", "columns", "errors", "figure_style", "outputs", "pipeline", "units"}
+TOP_LEVEL_MODULES = {"__init__", "campaign", "cli", "columns", "csv_tables", "errors", "figure_style", "outputs",
+                     "pipeline", "processes", "units"}
 STAGE_PACKAGES = {"candidates", "engine", "compute", "descriptors", "fade", "statistics", "ranking", "report"}
 
 

@@ -10,7 +10,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from redoxfront.outputs import write_csv, write_text
+from redoxfront.csv_tables import write_csv
+from redoxfront.outputs import write_text
 
 
 def test_failed_write_leaves_the_old_file_and_no_temporary(tmp_path: Path) -> None:
@@ -178,9 +179,9 @@ def test_write_csv_floats_and_ids_round_trip_exactly(tmp_path: Path) -> None:
 
 
 def test_write_csv_of_many_rows_is_written_in_blocks_and_whole(tmp_path: Path) -> None:
-    from redoxfront import outputs
+    from redoxfront import csv_tables
 
-    n = outputs.CSV_BLOCK_ROWS * 2 + 17
+    n = csv_tables.CSV_BLOCK_ROWS * 2 + 17
     t = pd.DataFrame({"id": [f"c{i}" for i in range(n)], "v": np.arange(n) / 3.0})
     lines = write_csv(t, tmp_path / "big.csv").read_text().splitlines()
     assert len(lines) == n + 1 and lines[0] == "id,v"
@@ -188,12 +189,12 @@ def test_write_csv_of_many_rows_is_written_in_blocks_and_whole(tmp_path: Path) -
 
 
 def test_tables_written_by_a_second_process_are_whole_and_failures_are_one_line(tmp_path: Path, monkeypatch) -> None:
-    from redoxfront import outputs
+    from redoxfront import csv_tables
     from redoxfront.errors import DataError
 
-    monkeypatch.setattr(outputs, "BACKGROUND_ROWS", 1)  # the forked writer even for a small table
+    monkeypatch.setattr(csv_tables, "BACKGROUND_ROWS", 1)  # the forked writer even for a small table
     t = _mixed_table(200)
-    wait = outputs.start_csv_writes([(t, tmp_path / "ranking.csv"), (t.head(5), tmp_path / "picks.csv")])
+    wait = csv_tables.start_csv_writes([(t, tmp_path / "ranking.csv"), (t.head(5), tmp_path / "picks.csv")])
     wait()
     t.to_csv(tmp_path / "pandas.csv", index=False)
     # pandas as the cross-check again: the child process wrote the same bytes
@@ -203,7 +204,7 @@ def test_tables_written_by_a_second_process_are_whole_and_failures_are_one_line(
     (tmp_path / "real").mkdir()
     (tmp_path / "linked").symlink_to(tmp_path / "real")
     with pytest.raises(DataError, match=r"is a link to"):  # refused before any process writes a part
-        outputs.start_csv_writes([(t, tmp_path / "linked" / "ranking.csv")])
+        csv_tables.start_csv_writes([(t, tmp_path / "linked" / "ranking.csv")])
     assert not list((tmp_path / "real").iterdir())
 
     class Unprintable:
@@ -212,7 +213,7 @@ def test_tables_written_by_a_second_process_are_whole_and_failures_are_one_line(
 
     bad = t.assign(note=[Unprintable() if i == 150 else "ok" for i in range(len(t))])
     (tmp_path / "ranking.csv").write_text("id\nold\n")
-    wait = outputs.start_csv_writes([(bad, tmp_path / "ranking.csv")])
+    wait = csv_tables.start_csv_writes([(bad, tmp_path / "ranking.csv")])
     with pytest.raises(DataError, match=r"writing ranking.csv failed: ValueError: no text for this value"):
         wait()
     assert (tmp_path / "ranking.csv").read_text() == "id\nold\n"  # the old file stays whole
@@ -252,7 +253,7 @@ def _float_edges() -> np.ndarray:
 def test_write_csv_floats_of_every_magnitude_write_what_pandas_writes_and_read_back(tmp_path: Path) -> None:
     import csv
 
-    from redoxfront import outputs
+    from redoxfront import csv_tables
 
     x = _float_edges()
     n = len(x)
@@ -264,7 +265,7 @@ def test_write_csv_floats_of_every_magnitude_write_what_pandas_writes_and_read_b
         "pick_order": pd.array([i if i % 5 else None for i in range(n)], dtype="Int64"),
         "knee": pd.array([None if i % 4 == 0 else bool(i % 2) for i in range(n)], dtype="boolean"),
     })
-    assert outputs._arrow_floats_match_repr()  # the Arrow route is the one under test, not the repr fallback
+    assert csv_tables._arrow_floats_match_repr()  # the Arrow route is the one under test, not the repr fallback
     ours = write_csv(t, tmp_path / "ours.csv").read_bytes()
     t.to_csv(tmp_path / "pandas.csv", index=False)
     # pandas (PyPI reference library) DataFrame.to_csv(index=False) as the external reference: same bytes

@@ -42,7 +42,7 @@ def main() -> None:
 
     for var in THREAD_VARIABLES:
         os.environ.setdefault(var, "1")
-    from redoxfront.process_memory import keep_freed_memory
+    from redoxfront.processes import keep_freed_memory
 
     keep_freed_memory()  # large temporary arrays reuse freed memory instead of faulting in new pages
 

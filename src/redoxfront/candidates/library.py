@@ -25,7 +25,7 @@ from tqdm.auto import tqdm
 from redoxfront.campaign import Campaign, section_from_mapping
 from redoxfront.columns import substituent_column
 from redoxfront.errors import SettingsError
-from redoxfront.outputs import write_csv
+from redoxfront.csv_tables import write_csv
 
 HYDROGEN = "H"
 """Substituent text for an unsubstituted site."""

@@ -181,7 +181,8 @@ def funnel_campaign(campaign: Campaign, *, workers: int | None = None, dask_addr
     from redoxfront.compute.fast_tier import FAST_ORBITAL_PROXY, FAST_STATUS, fast_vertical_column
     from redoxfront.compute.lock import campaign_lock
     from redoxfront.compute.step import compute_campaign
-    from redoxfront.outputs import write_csv, write_json
+    from redoxfront.csv_tables import write_csv
+    from redoxfront.outputs import write_json
 
     fs = funnel_settings(campaign)
     settings = campaign.compute

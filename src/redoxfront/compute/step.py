@@ -37,7 +37,7 @@ from redoxfront.compute.store import Store
 from redoxfront.descriptors import descriptors_for_candidate
 from redoxfront.engine.xtb import make_engine
 from redoxfront.errors import InputError
-from redoxfront.outputs import write_csv
+from redoxfront.csv_tables import write_csv
 
 if TYPE_CHECKING:
     import pandas as pd

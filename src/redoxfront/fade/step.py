@@ -65,7 +65,8 @@ from redoxfront.fade.rate_laws import (
     ModelChoice,
     choose_model,
 )
-from redoxfront.outputs import write_csv, write_text
+from redoxfront.csv_tables import write_csv
+from redoxfront.outputs import write_text
 
 LOW, HIGH = columns.CI_LOW_SUFFIX, columns.CI_HIGH_SUFFIX
 """Suffixes of the 95 % confidence-interval columns of the rate table."""

@@ -20,8 +20,9 @@ import pandas as pd
 from redoxfront import columns as col
 from redoxfront.campaign import bounded
 from redoxfront.errors import DataError, SettingsError
-from redoxfront.forked import start_forked
-from redoxfront.outputs import BACKGROUND_ROWS, read_header, read_table, start_csv_writes, write_json
+from redoxfront.processes import start_forked
+from redoxfront.csv_tables import BACKGROUND_ROWS, start_csv_writes
+from redoxfront.outputs import read_header, read_table, write_json
 from redoxfront.units import reference_label
 from redoxfront.ranking.objectives import OBJECTIVES
 from redoxfront.ranking.pareto import (

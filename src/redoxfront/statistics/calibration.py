@@ -21,7 +21,8 @@ import pandas as pd
 from redoxfront import columns
 from redoxfront.campaign import Campaign, aqueous_settings, bounded, section_from_mapping
 from redoxfront.errors import DataError, InputError
-from redoxfront.outputs import read_table, write_csv, write_json
+from redoxfront.csv_tables import write_csv
+from redoxfront.outputs import read_table, write_json
 from redoxfront.statistics.measured_ph import MEASURED_PH_NOTE, move_measured_to_ph
 from redoxfront.statistics.regression import OLSModel, one_dof_warning
 from redoxfront.units import STANDARD_TEMPERATURE_K, convert_potential, reference_key, reference_label

@@ -21,7 +21,8 @@ import pandas as pd
 from redoxfront import columns
 from redoxfront.campaign import bounded, choice
 from redoxfront.errors import DataError
-from redoxfront.outputs import read_table, write_csv
+from redoxfront.csv_tables import write_csv
+from redoxfront.outputs import read_table
 from redoxfront.statistics.regression import OLSModel
 from redoxfront.units import STANDARD_TEMPERATURE_K
 

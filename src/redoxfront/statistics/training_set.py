@@ -20,7 +20,8 @@ from scipy.spatial.distance import cdist
 
 from redoxfront import columns
 from redoxfront.errors import DataError
-from redoxfront.outputs import read_table, write_csv
+from redoxfront.csv_tables import write_csv
+from redoxfront.outputs import read_table
 
 ROW_BLOCK = 2048
 """Rows per distance block (keeps memory O(block x N), not O(N^2))."""

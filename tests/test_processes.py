@@ -10,7 +10,7 @@ from pathlib import Path
 import pytest
 
 from redoxfront.errors import DataError
-from redoxfront.forked import can_fork, start_forked
+from redoxfront.processes import can_fork, start_forked
 
 
 @pytest.mark.skipif(not can_fork(), reason="needs fork")
@@ -42,7 +42,7 @@ FAULTS_AFTER_REUSE = """
 import resource, sys
 import numpy as np
 if sys.argv[1] == "keep":
-    from redoxfront.process_memory import keep_freed_memory
+    from redoxfront.processes import keep_freed_memory
     assert keep_freed_memory()
 a = np.ones(16_000_000); del a  # 128 MB touched, then freed
 before = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
