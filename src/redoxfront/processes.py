@@ -19,14 +19,17 @@ Peak memory is unchanged: what is kept is what the command has already used and 
 again. The tuning is glibc's own, documented in mallopt(3): ``M_MMAP_THRESHOLD`` (requests
 this large or larger get their own mapping), ``M_TRIM_THRESHOLD`` (free memory at the top of
 the heap above this is given back) and ``M_ARENA_MAX`` (one heap shared by every thread, so
-the worker threads of the Monte Carlo reuse each other's blocks). Elsewhere (macOS, musl)
-nothing changes.
+the worker threads of the Monte Carlo reuse each other's blocks); pyarrow, which formats the
+CSV tables, is told to allocate through the same heap. Writing the 100,000-row ranking.csv
+took 0.37-0.67 s of system time with pyarrow's own pool and 0.05 s this way. Elsewhere
+(macOS, musl) nothing changes.
 """
 
 from __future__ import annotations
 
 import ctypes
 import ctypes.util
+import os
 import sys
 from typing import Any, Callable, Sequence
 
@@ -104,6 +107,8 @@ MMAP_THRESHOLD_BYTES = 512 * 2**20
 to at most 32 MiB as blocks are freed)."""
 TRIM_THRESHOLD_BYTES = 1024 * 2**20
 """Free memory at the top of the heap is given back only above 1 GiB."""
+ARROW_POOL_VARIABLE = "ARROW_DEFAULT_MEMORY_POOL"
+"""pyarrow's setting of its memory pool; 'system' is the C library's malloc."""
 
 
 def keep_freed_memory() -> bool:
@@ -121,6 +126,9 @@ def keep_freed_memory() -> bool:
         libc.gnu_get_libc_version  # only glibc has it  # noqa: B018
     except (OSError, AttributeError):
         return False
+    # pyarrow (the CSV writer) allocates through the same heap, not its own (mimalloc gives
+    # pages back as it frees them); read by pyarrow when it first allocates
+    os.environ.setdefault(ARROW_POOL_VARIABLE, "system")
     mallopt.argtypes = [ctypes.c_int, ctypes.c_int]
     mallopt.restype = ctypes.c_int
     done = [mallopt(M_MMAP_THRESHOLD, MMAP_THRESHOLD_BYTES), mallopt(M_TRIM_THRESHOLD, TRIM_THRESHOLD_BYTES),

@@ -141,15 +141,19 @@ def rank_table(table: pd.DataFrame, settings: RankingSettings, *, progress: bool
     hv_fraction = 0.0
     knee_id: str | None = None
     if len(rows):
+        from concurrent.futures import ThreadPoolExecutor
+
         mu, lo, hi = mean[rows], low[rows], high[rows]
-        r = non_dominated_ranks(mu)
+        with ThreadPoolExecutor(max_workers=1) as exact:  # the fronts of the means, beside the draws
+            ranks = exact.submit(non_dominated_ranks, mu)
+            p = front_probability(mu, lo, hi, settings.n_draws, settings.seed, progress=progress)
+            r = ranks.result()
         rank[rows] = r
         crowd[rows] = crowding_distance(mu, r)
         first = np.flatnonzero(r == 1)
         kn = first[knee_point(mu[first])]
         knee[rows[kn]] = True
         knee_id = str(out[col.ID].iloc[rows[kn]])
-        p = front_probability(mu, lo, hi, settings.n_draws, settings.seed, progress=progress)
         p_front[rows] = p
         box_lo, span = objective_box(Uncertain.from_interval(mu, lo, hi))
         hv_fraction = hypervolume((mu[first] - box_lo) / span, np.zeros(len(names)))

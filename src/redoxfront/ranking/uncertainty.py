@@ -19,7 +19,9 @@ References
 from __future__ import annotations
 
 import os
+import threading
 from dataclasses import dataclass
+from typing import Callable, Sequence
 
 import numpy as np
 from scipy.spatial import cKDTree
@@ -242,8 +244,6 @@ def _parallel_front_counts(sub: Uncertain, n_draws: int, seed: int, element_budg
     in flight stay within it), never from the thread count, so the result is the same on any
     number of threads.
     """
-    from concurrent.futures import ThreadPoolExecutor
-
     k, m = sub.mean.shape
     if k == 0:
         return np.zeros(0, dtype=np.int64)
@@ -258,13 +258,46 @@ def _parallel_front_counts(sub: Uncertain, n_draws: int, seed: int, element_budg
         return _front_counts(sub, sizes[i], np.random.default_rng(streams[i]), half, False, likely=likely)
 
     counts = np.zeros(k, dtype=np.int64)
-    threads = max(1, min(MC_THREADS, len(sizes), os.cpu_count() or 1))
-    with ThreadPoolExecutor(max_workers=threads) as pool:
-        for i, part in enumerate(pool.map(count, range(len(sizes)))):
-            counts += part
+
+    def add(i: int) -> None:
+        part = count(i)
+        with lock:
+            counts[:] += part
             bar.update(sizes[i])
+
+    lock = threading.Lock()
+    _on_threads(add, range(len(sizes)))
     bar.close()
     return counts
+
+
+def _on_threads(work: "Callable[[int], None]", items: "Sequence[int]") -> None:
+    """``work(i)`` for every item, on :data:`MC_THREADS` threads (numpy and scipy release the
+    interpreter lock in array work); the first error is raised here."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    items = list(items)
+    threads = max(1, min(MC_THREADS, len(items), os.cpu_count() or 1))
+    if threads == 1:
+        for i in items:
+            work(i)
+        return
+    with ThreadPoolExecutor(max_workers=threads) as pool:
+        for _ in pool.map(work, items):
+            pass
+
+
+def _distinct_rows(key: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """One row index per distinct row of ``key`` (in lexicographic order of the rows) and, for
+    every row, the number of its distinct row: ``key[reps][inverse] == key``. A sort and a
+    comparison of neighbours (np.unique(axis=0) does the same through a byte view, several
+    times slower)."""
+    order = np.lexsort(key.T[::-1])
+    ordered = key[order]
+    new = np.r_[True, np.any(ordered[1:] != ordered[:-1], axis=1)] if len(key) else np.zeros(0, bool)
+    inverse = np.empty(len(key), dtype=np.int64)
+    inverse[order] = np.cumsum(new) - 1
+    return order[new], inverse
 
 
 def front_probability(
@@ -297,9 +330,7 @@ def front_probability(
     n, m = unc.mean.shape
     if n == 0:
         return np.zeros(0)
-    key = np.hstack([unc.mean, unc.sd_low, unc.sd_high])
-    _, reps, inverse = np.unique(key, axis=0, return_index=True, return_inverse=True)
-    inverse = inverse.reshape(-1)  # distinct input of every row; reps: one row of each
+    reps, inverse = _distinct_rows(np.hstack([unc.mean, unc.sd_low, unc.sd_high]))
     lower, upper = unc.lower[reps], unc.upper[reps]
     alive = np.flatnonzero(~_certainly_dominated(lower, upper))
     sub = Uncertain(unc.mean[reps][alive], unc.sd_low[reps][alive], unc.sd_high[reps][alive])
@@ -388,8 +419,11 @@ def suggest_experiments(
         return np.zeros(0, dtype=np.int64), np.zeros(0)
     reach = np.empty((len(rows), len(u)), dtype=np.float32)
     step = max(1, SCORE_BLOCK_ELEMENTS // (len(u) * m))  # small temporaries, reused block after block
-    for s in range(0, len(rows), step):
+
+    def score(s: int) -> None:
         reach[s:s + step] = unc.prob_at_least(u, rows[s:s + step]).prod(axis=2)
+
+    _on_threads(score, range(0, len(rows), step))
     weight = np.ones(len(u), dtype=np.float32)
     cell = 1.0 / len(u01)
     picks: list[int] = []
