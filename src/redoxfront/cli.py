@@ -249,14 +249,18 @@ def rank_command(campaign: Path, quiet: bool, timings: bool) -> None:
     import time
 
     start = time.perf_counter()
-    from redoxfront import columns
-    from redoxfront.campaign import load_campaign
-    from redoxfront.ranking.step import rank_campaign
+    from redoxfront.processes import PreparedChild
 
-    phases: dict[str, float] = {"imports and settings": 0.0}
-    camp = load_campaign(campaign)
-    phases["imports and settings"] = time.perf_counter() - start
-    table = rank_campaign(camp, progress=not quiet, timings=phases)
+    # forked first: it imports the plotting code on the other core while this process reads and ranks
+    with PreparedChild(("redoxfront.ranking.figures",)) as drawer:
+        from redoxfront import columns
+        from redoxfront.campaign import load_campaign
+        from redoxfront.ranking.step import rank_campaign
+
+        phases: dict[str, float] = {"imports and settings": 0.0}
+        camp = load_campaign(campaign)
+        phases["imports and settings"] = time.perf_counter() - start
+        table = rank_campaign(camp, progress=not quiet, timings=phases, drawer=drawer)
     ranked = table[columns.PARETO_RANK].notna()
     first = table[table[columns.PARETO_RANK] == 1]
     click.echo(f"{int(ranked.sum())} of {len(table)} candidates ranked; {len(first)} on the first front")

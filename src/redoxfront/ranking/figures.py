@@ -39,7 +39,7 @@ from redoxfront.figure_style import (
     save_figure,
     style_axes,
 )
-from redoxfront.ranking.objectives import OBJECTIVES
+from redoxfront.ranking.objectives import FIGURE_COLUMNS, INTERVAL_COLUMNS, OBJECTIVES
 from redoxfront.ranking.pareto import first_front_mask
 
 MAX_ERRORBARS = 300
@@ -56,11 +56,6 @@ LABELS = {
     col.HALF_LIFE: "half-life of charged species (h)",
     col.MOLAR_MASS: "molar mass incl. counterions (g/mol), lower is better",
 }
-INTERVALS = {
-    col.CELL_VOLTAGE: (col.CELL_VOLTAGE_LOW, col.CELL_VOLTAGE_HIGH),
-    col.ENERGY_DENSITY: (col.ENERGY_DENSITY_LOW, col.ENERGY_DENSITY_HIGH),
-    col.HALF_LIFE: (col.HALF_LIFE_LOW, col.HALF_LIFE_HIGH),
-}
 KIND_WORDS = {
     "candidate": "calibrated or measured",
     "extrapolating": "extrapolating (outside model domain or calibration range)",
@@ -69,14 +64,9 @@ KIND_WORDS = {
 KIND_EDGE = {"candidate": INK, "extrapolating": ACCENT, "uncalibrated": CAUTION}
 
 
-_DRAWN = (col.ID, col.PARETO_RANK, col.P_FRONT, col.PICK_ORDER, col.KNEE, col.EXTRAPOLATING,
-          col.POTENTIAL_BASIS, *(c for pair in INTERVALS.values() for c in pair))
-"""Columns the figures read besides the plotted objectives."""
-
-
 def _ranked(table: pd.DataFrame, plotted: Sequence[str]) -> pd.DataFrame:
     """The ranked rows, only the columns a figure reads (a large table is not copied whole)."""
-    keep = list(dict.fromkeys(c for c in (*plotted, *_DRAWN) if c in table.columns))
+    keep = list(dict.fromkeys(c for c in (*plotted, *FIGURE_COLUMNS) if c in table.columns))
     return table.loc[table[col.PARETO_RANK].notna().to_numpy(), keep]
 
 
@@ -96,7 +86,7 @@ def trust_kind(table: pd.DataFrame) -> np.ndarray:
 
 
 def _errors(sub: pd.DataFrame, column: str) -> np.ndarray | None:
-    pair = INTERVALS.get(column)
+    pair = INTERVAL_COLUMNS.get(column)
     if pair is None or not all(c in sub.columns for c in pair):
         return None
     v = sub[column].to_numpy(float)

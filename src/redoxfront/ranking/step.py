@@ -12,6 +12,7 @@ from __future__ import annotations
 import dataclasses
 from dataclasses import dataclass, field
 from pathlib import Path
+from functools import partial
 from typing import TYPE_CHECKING, Sequence
 
 import numpy as np
@@ -20,11 +21,10 @@ import pandas as pd
 from redoxfront import columns as col
 from redoxfront.campaign import bounded
 from redoxfront.errors import DataError, SettingsError
-from redoxfront.processes import start_forked
-from redoxfront.csv_tables import BACKGROUND_ROWS, start_csv_writes
+from redoxfront.csv_tables import start_csv_writes, write_csv
 from redoxfront.outputs import read_header, read_table, write_json
 from redoxfront.units import reference_label
-from redoxfront.ranking.objectives import OBJECTIVES
+from redoxfront.ranking.objectives import FIGURE_COLUMNS, OBJECTIVES
 from redoxfront.ranking.pareto import (
     crowding_distance,
     hypervolume,
@@ -39,6 +39,7 @@ from redoxfront.ranking.uncertainty import (
 )
 
 if TYPE_CHECKING:
+    from redoxfront.processes import Job, PreparedChild
     from redoxfront.campaign import AqueousSettings, Campaign
     from redoxfront.ranking.cell_metrics import CellSettings
 
@@ -226,13 +227,17 @@ def ranking_objectives(campaign: "Campaign") -> tuple[str, ...]:
 
 
 def rank_campaign(campaign: "Campaign", *, progress: bool = True,
-                  timings: dict[str, float] | None = None) -> pd.DataFrame:
+                  timings: dict[str, float] | None = None,
+                  drawer: "PreparedChild | None" = None) -> pd.DataFrame:
     """Rank a campaign's candidates: reads results/predictions.csv, writes
     results/ranking.csv, results/picks.csv, results/ranking_summary.json and the figures
     under results/figures/; returns the ranked table.
 
     ``timings``: when given, filled with the wall time of each phase in seconds (reading,
     cell metrics, ranking, writing tables, figures), in the order they ran.
+    ``drawer``: a :class:`~redoxfront.processes.PreparedChild` forked early that has imported
+    :data:`FIGURE_MODULES`; it draws the figures while this process writes the tables. Without
+    one the figures are drawn here (and a large table is written by a forked process meanwhile).
     """
     clock = _PhaseClock(timings)
 
@@ -311,20 +316,79 @@ def rank_campaign(campaign: "Campaign", *, progress: bool = True,
     clock.lap("ranking (fronts, probability, picks)")
     out_dir = campaign.results_dir
     out_dir.mkdir(parents=True, exist_ok=True)
+    figures = _figure_jobs(campaign, result, cell_settings, aqueous, out_dir / "figures")
+    tables = [(result.table, out_dir / "ranking.csv"), (result.picks, out_dir / "picks.csv")]
+    if drawer is not None:  # the prepared process draws while this one writes
+        wait_for_figures = drawer.start(figures, "drawing the figures")
+        try:
+            for table, path in tables:
+                write_csv(table, path)
+            clock.lap("writing ranking.csv and picks.csv")
+            _write_summary(campaign, result, cell_settings, settings, aqueous, window, out_dir)
+            clock.lap("summary")
+        finally:
+            wait_for_figures()
+            clock.lap("figures (the rest, after the tables)")
+        return result.table
     # a large table is written by a second process while this one draws the figures
-    wait_for_tables = start_csv_writes([(result.table, out_dir / "ranking.csv"), (result.picks, out_dir / "picks.csv")])
+    wait_for_tables = start_csv_writes(tables)
     try:
-        _summary_and_figures(campaign, result, cell_settings, settings, aqueous, window, out_dir, clock)
+        _write_summary(campaign, result, cell_settings, settings, aqueous, window, out_dir)
+        clock.lap("summary")
+        for group in figures:
+            for job in group:
+                job()
+        clock.lap("figures")
     finally:
         wait_for_tables()
         clock.lap("writing ranking.csv and picks.csv (the rest, after the figures)")
     return result.table
 
 
-def _summary_and_figures(campaign: "Campaign", result: RankingResult, cell_settings: "CellSettings",
-                         settings: RankingSettings, aqueous: "AqueousSettings | None", window: dict | None,
-                         out_dir: Path, clock: "_PhaseClock") -> None:
-    """Write ranking_summary.json and the figures of a ranked campaign."""
+FIGURE_MODULES: tuple[str, ...] = ("redoxfront.ranking.figures",)
+"""What a process that draws the ranking figures imports (matplotlib with it)."""
+
+
+def _figure_jobs(campaign: "Campaign", result: RankingResult, cell_settings: "CellSettings",
+                 aqueous: "AqueousSettings | None", fig_dir: Path) -> list[list[Job]]:
+    """The figures of a ranked campaign as jobs, in groups that may run at once: the front; the
+    objectives pairwise (three or more objectives); the Pourbaix panels of the picks (aqueous).
+    Each job holds only the columns its figure reads."""
+
+    objectives = result.objectives
+    plotted = [OBJECTIVES[o][0] for o in objectives]
+    keep = [c for c in dict.fromkeys((*plotted, *FIGURE_COLUMNS)) if c in result.table.columns]
+    table = result.table[keep]
+    groups: list[list[Job]] = [[partial(_draw, "plot_front", table, objectives, fig_dir / "front.svg")]]
+    if len(objectives) > 2:  # with two, the front figure is the only pair
+        groups.append([partial(_draw, "plot_pairwise", table, objectives, fig_dir / "objectives_pairwise.svg")])
+    if aqueous is not None:
+        from redoxfront.units import convert_potential, water_lines_v_vs_she
+
+        ref = campaign.compute.reference
+        user_v = campaign.compute.user_reference_v_vs_fc
+        lines0 = tuple(convert_potential(x, "she", ref, user_v) for x in water_lines_v_vs_she(0.0, aqueous.temperature_k))
+        order = list(result.picks[col.ID]) if len(result.picks) else list(result.table[col.ID].head(6))
+        picks = result.table.set_index(col.ID, drop=False).loc[order]  # the full rows: pKa, potential used
+        groups[0].append(partial(_draw, "plot_pourbaix", picks, ref,
+                                 reference_label(ref, campaign.compute.user_reference_name), aqueous.ph,
+                                 cell_settings.water_overpotential_v, lines0, fig_dir / "pourbaix_picks.svg",
+                                 aqueous.temperature_k))
+    return groups
+
+
+def _draw(name: str, *args: object) -> None:
+    """Call the figure function ``name`` of :mod:`redoxfront.ranking.figures` (imported here, in
+    the process that draws)."""
+    from redoxfront.ranking import figures
+
+    getattr(figures, name)(*args)
+
+
+def _write_summary(campaign: "Campaign", result: RankingResult, cell_settings: "CellSettings",
+                   settings: RankingSettings, aqueous: "AqueousSettings | None", window: dict | None,
+                   out_dir: Path) -> None:
+    """Write ranking_summary.json of a ranked campaign."""
     basis = result.table[col.POTENTIAL_BASIS].value_counts().to_dict()
     summary = {
         "objectives": list(result.objectives),
@@ -362,37 +426,6 @@ def _summary_and_figures(campaign: "Campaign", result: RankingResult, cell_setti
 
             summary["partner"] = {k: v for k, v in partner_couple(cell_settings.counter_couple).items()}
     write_json(out_dir / "ranking_summary.json", summary)
-    clock.lap("summary")
-    from redoxfront.ranking.figures import plot_front, plot_pairwise  # noqa: I001
-
-    fig_dir = out_dir / "figures"
-    pairwise = None
-    if len(result.objectives) > 2:  # with two, the front figure is the only pair
-        def pairwise() -> None:
-            plot_pairwise(result.table, result.objectives, fig_dir / "objectives_pairwise.svg")
-    if pairwise is not None and len(result.table) >= BACKGROUND_ROWS:
-        # a large library: the second figure is drawn by a forked process beside this one
-        wait_for_pairwise = start_forked([[pairwise]], "drawing objectives_pairwise.svg")
-        plot_front(result.table, result.objectives, fig_dir / "front.svg")
-        wait_for_pairwise()
-    else:
-        plot_front(result.table, result.objectives, fig_dir / "front.svg")
-        if pairwise is not None:
-            pairwise()
-    if aqueous is not None:
-        from redoxfront.ranking.figures import plot_pourbaix
-        from redoxfront.units import convert_potential, water_lines_v_vs_she
-
-        user_v = campaign.compute.user_reference_v_vs_fc
-        lines0 = tuple(convert_potential(x, "she", campaign.compute.reference, user_v)
-                       for x in water_lines_v_vs_she(0.0, aqueous.temperature_k))
-        order = list(result.picks[col.ID]) if len(result.picks) else list(result.table[col.ID].head(6))
-        picks = result.table.set_index(col.ID, drop=False).loc[order]  # the full rows: pKa, potential used
-        plot_pourbaix(picks, campaign.compute.reference,
-                      reference_label(campaign.compute.reference, campaign.compute.user_reference_name),
-                      aqueous.ph, cell_settings.water_overpotential_v, lines0, fig_dir / "pourbaix_picks.svg",
-                      aqueous.temperature_k)
-    clock.lap("figures")
 
 
 class _PhaseClock:
