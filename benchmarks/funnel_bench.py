@@ -26,9 +26,13 @@ machine's load average at start and end:
   ``redoxfront status`` end to end on that campaign, its store holding the fast tier of every
   candidate and the full tier of a fifth (target <= 5 s; the same with the kept candidate list
   removed, every row parsed, is printed without a target);
+The fast tier and Dask runs are repeated (``--repeats``, default 2: each worker count twice,
+alternating) and the fastest run of each worker count is judged: identical work varies by up
+to ~20 % between runs on our 2-core VMs, and a single pair of runs printed efficiencies from
+0.84 to 1.12 for the same code. Every run's time is printed.
 Exits 1 when any figure misses its target. Run on an idle machine:
-  .venv/bin/python benchmarks/funnel_bench.py [--sample 240] [--no-dask] [--dask-sample 1024] [--stream 100000]
-  [--only-stream]
+  .venv/bin/python benchmarks/funnel_bench.py [--sample 240] [--repeats 2] [--no-dask] [--dask-sample 1024]
+  [--stream 100000] [--only-stream]
 """
 
 from __future__ import annotations
@@ -300,6 +304,34 @@ def dask_overhead(workers: int) -> float:
     return time.perf_counter() - t0
 
 
+def _spin(n: int) -> float:
+    """CPU seconds of a pure-Python loop of ``n`` steps (the machine's reference work)."""
+    t = time.process_time()
+    total = 0
+    for i in range(n):
+        total += i * i % 7
+    return time.process_time() - t
+
+
+def machine_scaling(repeats: int, n: int = 30_000_000) -> list[float]:
+    """The machine's own 2-core speed-up: one pure-Python loop alone, then two at once in forked
+    processes, ``repeats`` times; the ceiling of any 2-vs-1 figure measured in the same run."""
+    import multiprocessing
+
+    out = []
+    ctx = multiprocessing.get_context("fork")
+    for _ in range(repeats):
+        t = time.perf_counter()
+        _spin(n)
+        alone = time.perf_counter() - t
+        with ctx.Pool(2) as pool:
+            t = time.perf_counter()
+            pool.map(_spin, [n, n])
+            both = time.perf_counter() - t
+        out.append(2 * alone / both)
+    return out
+
+
 def child_json(*args: str) -> dict:
     """Run this script with ``args`` in a fresh process; its last line of output, as JSON."""
     out = subprocess.run([sys.executable, __file__, *args], capture_output=True, text=True, check=True)
@@ -317,6 +349,8 @@ def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--sample", type=int, default=240, help="about this many library members in the sample")
     ap.add_argument("--no-dask", action="store_true", help="leave out the Dask 2-vs-1 comparison")
+    ap.add_argument("--repeats", type=int, default=2,
+                    help="runs of each worker count (fast tier and Dask), alternating; the fastest of each is judged")
     ap.add_argument("--dask-sample", type=int, default=1024,
                     help="about this many library members for the Dask 2-vs-1 comparison (a cluster is for "
                          "large libraries: its start, about 1 s, is paid once per run)")
@@ -365,10 +399,21 @@ def main() -> int:
         heavy = [c.heavy_atoms for c in cands]
         print(f"sample: {n} members of the invented 18^4 library, {min(heavy)}-{max(heavy)} heavy atoms; "
               f"enumerated in {enum_s:.2f} s, read in {read_s:.2f} s", flush=True)
-        # 2 workers first: the pool forks before this process loads the engine
-        ok2, wall2, eng2 = fast_tier_end_to_end(csv, tmp / "fast2.csv", tmp / "s2.sqlite", settings, 2)
-        ok1, wall1, eng1 = fast_tier_end_to_end(csv, tmp / "fast1.csv", tmp / "s1.sqlite", settings, 1)
+        # 2 workers first: the pool forks before this process loads the engine. Each worker count
+        # runs --repeats times, alternating, each time with a fresh store; the fastest run of each
+        # is judged (the VM's own variation, up to ~20 % between runs, only ever slows a run down)
+        passes: dict[int, list[tuple[int, float, float]]] = {2: [], 1: []}
+        for r in range(args.repeats):
+            for w in (2, 1):
+                passes[w].append(fast_tier_end_to_end(csv, tmp / f"fast{w}-{r}.csv", tmp / f"s{w}-{r}.sqlite",
+                                                      settings, w))
+        (ok2, wall2, eng2), (ok1, wall1, eng1) = (min(passes[w], key=lambda p: p[1]) for w in (2, 1))
+        print(f"fast tier runs (wall s): 2 workers {', '.join(f'{p[1]:.2f}' for p in passes[2])}; "
+              f"1 worker {', '.join(f'{p[1]:.2f}' for p in passes[1])}; the fastest of each is judged")
         rate2, rate1 = ok2 / wall2 * 3600, ok1 / wall1 * 3600
+        ceiling = machine_scaling(args.repeats)
+        print(f"the machine's own speed-up, 2 processes vs 1, on a pure-Python loop: "
+              f"{', '.join(f'{x:.2f}x' for x in ceiling)} (no target: the ceiling of the 2-vs-1 figures below)")
         from redoxfront.compute.funnel import FunnelSettings
 
         n_points = 1 if FunnelSettings().proxy == "orbital" else 2
@@ -388,9 +433,14 @@ def main() -> int:
             dask_table, _ = library_sample((kd, kd, kd, max(1, round(args.dask_sample / kd ** 3))), 11)
             dask_csv = tmp / "dask_sample.csv"
             dask_table[["id", "smiles"]].to_csv(dask_csv, index=False)
-            walld1, walld2 = (child_json("--dask-run", str(w), str(dask_csv))["wall_s"] for w in (1, 2))
+            dask_walls: dict[int, list[float]] = {1: [], 2: []}
+            for _ in range(args.repeats):
+                for w in (1, 2):
+                    dask_walls[w].append(child_json("--dask-run", str(w), str(dask_csv))["wall_s"])
+            walld1, walld2 = min(dask_walls[1]), min(dask_walls[2])
             print(f"Dask LocalCluster on {len(dask_table)} library members (cluster start included, each run a "
-                  f"process of its own; 1 worker {walld1:.1f} s, 2 workers {walld2:.1f} s):")
+                  f"process of its own; 1 worker {', '.join(f'{x:.1f}' for x in dask_walls[1])} s, 2 workers "
+                  f"{', '.join(f'{x:.1f}' for x in dask_walls[2])} s; the fastest of each is judged):")
             line("speed-up 2 workers vs 1 (fast tier)", walld1 / walld2, "x", 1.8, True, missed)
             o1, o2 = (child_json("--dask-overhead", str(w))["wall_s"] for w in (1, 2))
             print(f"    (the cluster's own cost, start + first task's imports + close, no work: 1 worker {o1:.2f} s, "
