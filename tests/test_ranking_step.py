@@ -88,6 +88,8 @@ def test_rank_command(tmp_path):
     result = CliRunner().invoke(main, ["rank", str(tmp_path), "--quiet"])
     assert result.exit_code == 0, result.output
     assert "first front" in result.output and "picks.csv" in result.output
+    for name in ("front.svg", "objectives_pairwise.svg"):  # drawn by the process forked at the start
+        assert (tmp_path / "results" / "figures" / name).read_text().lstrip().startswith(("<?xml", "<svg"))
     bad = tmp_path / "bad"
     bad.mkdir()
     _campaign(bad, cell='counter = "potential"\n')
