@@ -68,22 +68,25 @@ def start_forked(groups: Sequence[Sequence[Job]], what: str) -> Callable[[], Non
         children.append((child, receive))
 
     def wait() -> None:
-        problems = []
-        for child, receive in children:
-            try:
-                problems.append(receive.recv())
-            except EOFError:
-                problems.append("the process ended without a word")
-            finally:
-                receive.close()
-                child.join()
-            if child.exitcode != 0 and not problems[-1]:
-                problems[-1] = f"exit code {child.exitcode}"
-        problem = next((p for p in problems if p), "")
+        problem = next((p for p in [_reply(receive, child) for child, receive in children] if p), "")
         if problem:
             raise DataError(f"{what} failed: {problem}")
 
     return wait
+
+
+def _reply(conn: Any, process: Any) -> str:
+    """A child's one line ('' when its jobs succeeded), once it has ended; the connection closed."""
+    try:
+        problem = conn.recv()
+    except EOFError:
+        problem = "the process ended without a word"
+    finally:
+        conn.close()
+        process.join()
+    if process.exitcode != 0 and not problem:
+        problem = f"exit code {process.exitcode}"
+    return problem
 
 
 class PreparedChild:
@@ -125,13 +128,7 @@ class PreparedChild:
         process = self._process
 
         def wait() -> None:
-            try:
-                problem = conn.recv()
-            except EOFError:
-                problem = "the process ended without a word"
-            finally:
-                conn.close()
-                process.join()
+            problem = _reply(conn, process)
             if problem:
                 raise DataError(f"{what} failed: {problem}")
 
