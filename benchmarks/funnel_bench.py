@@ -84,10 +84,13 @@ def fast_tier_end_to_end(csv: Path, out: Path, store: Path, settings: ComputeSet
     import pandas as pd
 
     from redoxfront.candidates.structures import read_candidates
+    from redoxfront.compute.executors import start_worker_server
     from redoxfront.compute.fast_tier import FAST_STATUS, FastJob, run_fast_tier
     from redoxfront.csv_tables import write_csv
 
     t0 = time.perf_counter()
+    if dask == "local":  # as the command does first with --cluster local
+        start_worker_server()
     cands, _ = read_candidates(csv, settings)
     jobs = [FastJob.of(c) for c in cands]
     from redoxfront.compute.funnel import FunnelSettings

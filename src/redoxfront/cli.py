@@ -47,6 +47,15 @@ def main() -> None:
     keep_freed_memory()  # large temporary arrays reuse freed memory instead of faulting in new pages
 
 
+def start_cluster_early(cluster: str | None) -> None:
+    """With ``--cluster local``, start what the cluster's workers are forked from now, so that it
+    loads on another core while the command reads its inputs."""
+    if cluster == "local":
+        from redoxfront.compute.executors import start_worker_server
+
+        start_worker_server()
+
+
 CAMPAIGN_ARG = click.argument(
     "campaign", type=click.Path(exists=True, path_type=Path), metavar="CAMPAIGN"
 )
@@ -90,6 +99,7 @@ def library_command(campaign: Path) -> None:
 def compute_command(campaign: Path, candidates: Path | None, out: Path | None, workers: int | None,
                     cluster: str | None, potentials_only: bool, funnel: bool, quiet: bool) -> None:
     """Optimise both redox states of every candidate and write uncalibrated potentials."""
+    start_cluster_early(cluster)
     from redoxfront.campaign import load_campaign
     from redoxfront.compute.step import compute_campaign
 
@@ -290,6 +300,7 @@ def rank_command(campaign: Path, quiet: bool, timings: bool) -> None:
 @friendly_errors
 def run_command(campaign: Path, workers: int | None, cluster: str | None, quiet: bool) -> None:
     """The whole job: compute, fade fitting, calibration, rate model and ranking."""
+    start_cluster_early(cluster)
     from redoxfront.pipeline import run_campaign
 
     run_campaign(campaign, workers=workers, dask_address=cluster, progress=not quiet, echo=click.echo)
