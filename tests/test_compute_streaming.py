@@ -6,15 +6,18 @@ from __future__ import annotations
 
 import gc
 import operator
+import os
 import sqlite3
+import sys
 from pathlib import Path
 
 import pytest
 
 from redoxfront.campaign import ComputeSettings, ConformerSettings, load_campaign
 from redoxfront.candidates.structures import parse_candidate, read_candidates
-from redoxfront.compute.executors import default_window, map_tasks
-from redoxfront.compute.fast_tier import FastJob, run_fast_tier
+from redoxfront.compute.executors import (LOCAL_CLUSTER_CONFIG, _local_cluster, default_window, map_tasks,
+                                          start_worker_server)
+from redoxfront.compute.fast_tier import FastJob, chunk_sizes, chunked, run_fast_tier
 from redoxfront.compute.roster import load_roster, roster_key
 from redoxfront.compute.status import compute_status
 from redoxfront.compute.step import cluster_items, compute_campaign, compute_candidates
@@ -58,6 +61,42 @@ def test_map_tasks_keeps_a_bounded_window_in_flight(where):
     # common practice, no source: every task once, and never more in flight than the window
     assert sorted(out) == sorted(-i for i in range(40))
     assert max(ahead) <= default_window(2) and items.drawn == 40
+
+
+def test_chunks_shrink_towards_the_end_and_cover_every_item_once():
+    sizes = chunk_sizes(1080, 16, 2)
+    # guided self-scheduling (Polychronopoulos & Kuck, IEEE Trans. Comput. 1987, from memory):
+    # full chunks first, then chunks shrinking with the work left, so no worker is left with a
+    # whole chunk while the others wait at the end
+    assert sum(sizes) == 1080 and sizes == sorted(sizes, reverse=True)
+    assert sizes[:60] == [16] * 60 and sizes[-1] <= 2
+    items = list(range(1080))
+    chunks = list(chunked(items, sizes))
+    assert [len(c) for c in chunks] == sizes and [x for c in chunks for x in c] == items
+    assert chunk_sizes(0, 16, 2) == [] and sum(chunk_sizes(5, 64, 8)) == 5
+    assert list(chunked(range(5), 2)) == [[0, 1], [2, 3], [4]]  # a fixed size, as before
+
+
+@pytest.mark.skipif(sys.platform != "linux", reason="workers are forked from a server process on Linux only")
+def test_a_local_cluster_forks_its_workers_from_the_early_server_and_runs_lean():
+    pytest.importorskip("distributed")
+    import dask
+    from distributed import Client
+    from multiprocessing import forkserver
+
+    start_worker_server()  # what `compute --cluster local` does first
+    server = forkserver._forkserver._forkserver_pid
+    cluster = _local_cluster(1)
+    try:
+        with Client(cluster) as client:
+            seen = client.run(lambda: (os.getppid(), dask.config.get("distributed.worker.profile.enabled"),
+                                       dask.config.get("distributed.admin.tick.interval")))
+    finally:
+        cluster.close()
+    # the worker is a child of the server started first (not of a second one), and it runs with
+    # the lean settings, not Dask's own defaults (profiling on, a 20 ms tick; distributed's
+    # distributed.yaml, common practice to read there)
+    assert list(seen.values()) == [(server, False, LOCAL_CLUSTER_CONFIG["distributed.admin.tick.interval"])]
 
 
 def test_fast_tier_draws_its_jobs_a_chunk_at_a_time(tmp_path):
