@@ -75,6 +75,9 @@ def test_chunks_shrink_towards_the_end_and_cover_every_item_once():
     assert [len(c) for c in chunks] == sizes and [x for c in chunks for x in c] == items
     assert chunk_sizes(0, 16, 2) == [] and sum(chunk_sizes(5, 64, 8)) == 5
     assert list(chunked(range(5), 2)) == [[0, 1], [2, 3], [4]]  # a fixed size, as before
+    # a total counted too low (a candidates file whose rows were miscounted) must not lose items
+    assert list(chunked(range(9), [3, 2])) == [[0, 1, 2], [3, 4], [5, 6], [7, 8]]
+    assert list(chunked(range(2), [])) == [[0], [1]]
 
 
 @pytest.mark.skipif(sys.platform != "linux", reason="workers are forked from a server process on Linux only")

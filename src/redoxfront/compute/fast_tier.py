@@ -232,13 +232,16 @@ def _fast_chunk(chunk: Sequence[tuple[FastJob, dict | None]], settings: ComputeS
 
 def chunked(items: Iterable[Any], size: int | Iterable[int]) -> Iterator[list[Any]]:
     """Consecutive lists of at most ``size`` items; ``size`` may also give each list's length in
-    turn (:func:`chunk_sizes`)."""
-    sizes = itertools.repeat(size) if isinstance(size, int) else iter(size)
+    turn (:func:`chunk_sizes`). Items left when those lengths run out (a total counted too low)
+    go on in lists of the last length: none is dropped."""
     source = iter(items)
-    for n in sizes:
+    n = size if isinstance(size, int) else 1
+    for n in () if isinstance(size, int) else size:
         chunk = list(itertools.islice(source, n))
         if not chunk:
             return
+        yield chunk
+    while chunk := list(itertools.islice(source, n)):
         yield chunk
 
 
