@@ -169,3 +169,18 @@ def test_status_reads_the_kept_candidate_list_and_parses_a_changed_file(tmp_path
     assert load_roster(camp.store_path, roster_key(path, camp.compute)) is not None  # kept for the next call
     with sqlite3.connect(camp.store_path) as con:
         assert con.execute("SELECT COUNT(*) FROM rosters").fetchone()[0] == 2
+
+
+def test_status_shows_a_progress_bar_while_it_parses_the_file(tmp_path):
+    from click.testing import CliRunner
+
+    from redoxfront.cli import main
+
+    _campaign(tmp_path, ["m0,COc1ccccc1", "bad,C1CC", "m1,Cc1ccc(C)cc1", "bad2,C1CC"])
+    shown = CliRunner().invoke(main, ["status", str(tmp_path)])
+    assert shown.exit_code == 0, shown.output
+    # common practice, no source: a long step shows its progress; every row counts, rejected ones too
+    assert "reading candidates" in shown.stderr and "4/4" in shown.stderr
+    assert "2 candidates: 0 done, 0 failed, 0 partly done, 2 pending; 2 input rows rejected" in shown.stdout
+    quiet = CliRunner().invoke(main, ["status", str(tmp_path), "--quiet"])
+    assert quiet.exit_code == 0 and "reading candidates" not in quiet.stderr

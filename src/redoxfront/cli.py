@@ -144,13 +144,14 @@ def compute_command(campaign: Path, candidates: Path | None, out: Path | None, w
 @CAMPAIGN_ARG
 @click.option("--candidates", type=click.Path(exists=True, path_type=Path), default=None,
               help="Candidate file (CSV or SDF); default: inputs.candidates of the campaign.")
+@click.option("--quiet", is_flag=True, help="No progress bar.")
 @friendly_errors
-def status_command(campaign: Path, candidates: Path | None) -> None:
+def status_command(campaign: Path, candidates: Path | None, quiet: bool) -> None:
     """How far the compute step has come: done, failed, partly done and pending candidates."""
     from redoxfront.campaign import load_campaign
     from redoxfront.compute.status import compute_status
 
-    st = compute_status(load_campaign(campaign), candidates_path=candidates)
+    st = compute_status(load_campaign(campaign), candidates_path=candidates, progress=not quiet)
     total = len(st.done) + len(st.failed) + len(st.partial) + len(st.pending)
     click.echo(f"{total} candidates: {len(st.done)} done, {len(st.failed)} failed, "
                f"{len(st.partial)} partly done, {len(st.pending)} pending; "
