@@ -104,3 +104,58 @@ def test_window_flags_water_by_ph_and_acetonitrile():
     out = cell_metrics(t, CellSettings(counter="potential", counter_potential_v=0.8, ph=7.0), "she",
                        solvent="water")
     assert out.loc[0, col.WINDOW_FLAG] == "" and out.loc[1, col.WINDOW_FLAG].startswith("outside the window: below")
+
+
+def _ring_systems(smiles: str) -> set[str]:
+    """Canonical SMILES of each ring system of a molecule: fused rings (two shared atoms) merged,
+    atoms double-bonded to the system kept (so a quinone keeps its C=O)."""
+    from rdkit import Chem
+
+    mol = Chem.MolFromSmiles(smiles)
+    systems: list[set[int]] = []
+    for ring in mol.GetRingInfo().AtomRings():
+        merged = set(ring)
+        for other in [s for s in systems if len(s & merged) >= 2]:
+            systems.remove(other)
+            merged |= other
+        systems.append(merged)
+    out = set()
+    for system in systems:
+        atoms = set(system)
+        for i in system:
+            for bond in mol.GetAtomWithIdx(i).GetBonds():
+                if bond.GetBondType() == Chem.BondType.DOUBLE:
+                    atoms.add(bond.GetOtherAtomIdx(i))
+        out.add(Chem.MolFragmentToSmiles(mol, sorted(atoms)))
+    return out
+
+
+def test_the_reduction_scope_the_report_states_is_what_the_reference_set_holds():
+    from redoxfront.ranking.potential_bands import REDUCTION_SET_SCOPE
+
+    # Neugebauer et al., J. Phys. Chem. A 2020, 124, 7166 (ROP313): the published reductions
+    red = pd.read_csv(ERRORS, dtype={"id": str}).query("process == 'reduction'")
+    systems = [_ring_systems(s) for s in red["smiles"]]
+    assert len(red) == 33 and "33 published reductions" in REDUCTION_SET_SCOPE
+    assert sum("c1ccccc1" in rs for rs in systems) == 30 and "benzene (30 of them)" in REDUCTION_SET_SCOPE
+    # benzene, naphthalene, anthracene and the quinodimethane of TCNQ; no quinone (a ring C=O),
+    # no nitrogen in a ring
+    assert set().union(*systems) == {"c1ccccc1", "c1ccc2ccccc2c1", "c1ccc2cc3ccccc3cc2c1", "C=c1ccc(=C)cc1"}
+    assert _ring_systems("O=C1C=CC(=O)C=C1") == {"O=C1C=CC(=O)C=C1"}  # the rule keeps a quinone's C=O
+
+
+def test_the_report_states_each_band_as_the_interval_around_the_raw_value():
+    from redoxfront.ranking.potential_bands import REDUCTION_SET_SCOPE
+    from redoxfront.report.narrative import uncalibrated_band_words
+
+    red_lo, red_hi = REFERENCE_SET_BANDS["reduction"].interval(0.0)
+    ox_lo, ox_hi = REFERENCE_SET_BANDS["oxidation"].interval(0.0)
+    anolytes = uncalibrated_band_words({"anolyte"})
+    # the interval of a raw value x is [x - q97.5, x + |q2.5|] (common practice for an error band:
+    # true = computed - error), so an anolyte's reads -0.37 to +0.44 V, not the errors' -0.44 to +0.37
+    assert f"reductions {red_lo:+.2f} to {red_hi:+.2f} V around the raw value" in anolytes
+    assert f"{red_lo:+.2f}" == "-0.37" and REDUCTION_SET_SCOPE in anolytes and "oxidations" not in anolytes
+    catholytes = uncalibrated_band_words({"catholyte"})
+    assert f"oxidations {ox_lo:+.2f} to {ox_hi:+.2f} V" in catholytes and REDUCTION_SET_SCOPE not in catholytes
+    both = uncalibrated_band_words({"bipolar"})
+    assert "reductions" in both and "oxidations" in both and REDUCTION_SET_SCOPE in both

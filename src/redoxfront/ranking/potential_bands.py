@@ -64,6 +64,16 @@ REFERENCE_SET_BANDS: dict[str, ErrorBand] = {
 }
 """Error statistics per couple type, V (see the module docstring for how they were made)."""
 
+REDUCTION_SET_SCOPE = (
+    "The reduction band comes from 33 published reductions whose ring systems are benzene (30 of "
+    "them), naphthalene, anthracene and one quinodimethane (aromatic ketones, aldehydes, nitro "
+    "compounds, nitriles, imines): it holds no quinone, viologen or N-heteroaromatic ring, so for "
+    "such anolytes it is not validated and may be too narrow (2,1,3-benzothiadiazole here: computed "
+    "about 0.9 V more negative than the value remembered from the literature, -1.55 V vs Fc+/Fc, from "
+    "memory). Calibrate against measured potentials of the family.")
+"""What the reduction band was measured on, in words for the report (the counts are recomputed
+from ``benchmarks/reference_set_errors.csv`` by tests/test_ranking_potential_bands.py)."""
+
 SECOND_STEP_OVERESTIMATE_V: float = 1.2
 """How much further from the first step implicit solvent puts a second step, V (1,4-benzoquinone:
 computed 1.9 V separation against ~0.7 V measured; anthraquinone 1.5 V against ~0.7 V; from memory)."""

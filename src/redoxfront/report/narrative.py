@@ -16,6 +16,7 @@ from redoxfront import __version__
 from redoxfront import columns as C
 from redoxfront import units
 from redoxfront.campaign import Campaign
+from redoxfront.ranking.potential_bands import REFERENCE_SET_BANDS
 from redoxfront.report import formatting as F
 
 OBJECTIVE_WORDS: dict[str, str] = {
@@ -26,10 +27,13 @@ OBJECTIVE_WORDS: dict[str, str] = {
 }
 """Objective name -> how the report says it."""
 
+_RED, _OX = REFERENCE_SET_BANDS["reduction"], REFERENCE_SET_BANDS["oxidation"]
+
 LIMITATIONS: tuple[str, ...] = (
     "Potentials come from a fast semiempirical method (GFN2-xTB) with an implicit solvent. "
     "Without calibration against measured potentials, 95 % of their errors on published couples "
-    "span -0.44 to +0.37 V for reductions and -0.61 to +0.77 V for oxidations (docs/validation.md); "
+    f"span {_RED.q025_v:+.2f} to {_RED.q975_v:+.2f} V for reductions and {_OX.q025_v:+.2f} to {_OX.q975_v:+.2f} V "
+    "for oxidations (docs/validation.md); "
     "after a linear calibration within one compound class, by about 0.05-0.1 V (Davis & Fry, "
     "J. Phys. Chem. A 2010, 114, 12299). Outside the range of the measured compounds the "
     "calibration is an extrapolation.",
@@ -353,6 +357,21 @@ def method_line(campaign: Campaign, desc: pd.DataFrame | None) -> str:
             f"Software: {_software()}; settings hash {s.result_hash()} (the key of the stored states).")
 
 
+def uncalibrated_band_words(roles: set[str]) -> str:
+    """How the interval of an uncalibrated potential is made, for the couple types of ``roles``
+    (a bipolar carrier has both): each band as offsets from the raw value, V, and, for
+    reductions, what the published set behind the band covers."""
+    from redoxfront.ranking.potential_bands import REDUCTION_SET_SCOPE, couple_type
+
+    kinds = {k for r in roles for k in (("reduction", "oxidation") if r == "bipolar" else (couple_type(r),))}
+    bands = [f"{kind}s {-REFERENCE_SET_BANDS[kind].q975_v:+.2f} to {-REFERENCE_SET_BANDS[kind].q025_v:+.2f} V"
+             for kind in ("reduction", "oxidation") if kind in kinds]
+    text = ("given the 95 % error band of their couple type, measured on published potentials ("
+            + ", ".join(bands) + " around the raw value; two-electron carriers wider and flagged; see the "
+            "ranking documentation).")
+    return f"{text} {REDUCTION_SET_SCOPE}" if "reduction" in kinds else text
+
+
 def assumptions(campaign: Campaign, cell: Any, desc: pd.DataFrame | None,
                 summary: Mapping[str, Any], r: str) -> list[dict[str, str]]:
     """The cell and method assumptions behind every number, as label/value pairs (``r``: the
@@ -374,6 +393,7 @@ def assumptions(campaign: Campaign, cell: Any, desc: pd.DataFrame | None,
             f"(Connelly & Geiger 1996); absolute SHE {units.ABSOLUTE_SHE_V[s.absolute_she]:.2f} V ({s.absolute_she})")
     order = cell.rate_order or "as the rate model (1: ln 2 / k; 2: 1 / (k c0))"
     role = f"{s.role}, {s.n_electrons} electron(s) per molecule"
+    roles = {s.role} if desc is None or C.ROLE not in desc else set(desc[C.ROLE].dropna().astype(str)) or {s.role}
     if desc is not None and C.ROLE in desc and desc[C.ROLE].nunique() > 1:  # rows name their own role
         counts = desc[C.ROLE].astype(str).value_counts()
         role = "per row: " + ", ".join(f"{n} {r}" for r, n in counts.items()) + f" (campaign default: {role})"
@@ -388,9 +408,7 @@ def assumptions(campaign: Campaign, cell: Any, desc: pd.DataFrame | None,
         ("Reference electrode", f"potentials vs {r}; conversions: {conv}"),
         ("Uncalibrated potentials", (f"given a 95 % interval of ±{cell.uncalibrated_uncertainty_v:g} V ([cell] "
                                      "uncalibrated_uncertainty_v)") if cell.uncalibrated_uncertainty_v is not None else
-         "given the 95 % error band of their couple type (oxidation or reduction), measured on published "
-         "potentials (reductions -0.44 to +0.37 V, oxidations -0.61 to +0.77 V around the raw value; "
-         "two-electron carriers wider and flagged; see the ranking documentation)"),
+         uncalibrated_band_words(roles)),
         ("Half-life", f"rate order {order}, at the operating concentration"),
         ("Method", method_line(campaign, desc)),
         ("Conformers", conformer_words(campaign, desc)),
