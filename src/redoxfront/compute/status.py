@@ -50,15 +50,15 @@ def campaign_roster(campaign: Campaign, path: Path, *, progress: bool = False) -
     and RDKit are unchanged, else parsed now (and kept for the next call, when the campaign has a
     store). Parsing takes about half a millisecond a row (a minute at 100,000), so it shows a
     progress bar when ``progress``."""
-    from tqdm.auto import tqdm
-
-    from redoxfront.candidates.files import count_rows
-
     settings = campaign.compute
     key = roster_key(path, settings)
     found = load_roster(campaign.store_path, key)
     if found is not None:
         return found
+    from tqdm.auto import tqdm
+
+    from redoxfront.candidates.files import count_rows
+
     problems: list[InputError] = []
     with tqdm(total=count_rows(path) if progress else None, desc="reading candidates", unit="row",
               disable=not progress) as bar:
